@@ -1,0 +1,45 @@
+"""Edgewise's engine: from a table of measurements to an equivalence class of causal diagrams.
+
+Concepts
+--------
+Two variables that are independent given some others (their *separating set*) are not
+directly linked; two independent causes of a common effect become dependent once the effect is
+conditioned on (a *collider*). From such patterns, a PC-style search (Spirtes, Glymour &
+Scheines 2000) recovers the *equivalence class* of diagrams that fit the data: edges whose
+direction the data fix are directed, the rest stay undirected (a CPDAG).
+
+The search is sound only under causal sufficiency, acyclicity, faithfulness, i.i.d. rows and an
+independence test that fits the data; its output is a set of hypotheses to weigh with study
+design and domain expertise (see ``discovery.result.ASSUMPTIONS``).
+
+Examples
+--------
+>>> import networkx as nx
+>>> from discovery import discover
+>>> from discovery.independence import DSeparationOracle
+>>> result = discover(None, test=DSeparationOracle(nx.DiGraph([("a", "c"), ("b", "c")])))
+>>> [e.arrow() for e in result.edges]
+['a → c', 'b → c']
+
+This package never imports Qt.
+"""
+
+__version__ = "0.1.0"
+
+from .exceptions import (DataValidationError, DegenerateDataWarning, DiscoveryError,
+                         KnowledgeError, ResultFormatError, SearchCancelled,
+                         SearchLimitWarning, SettingsError)
+from .independence import DSeparationOracle, FisherZ, PValueCache
+from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
+from .knowledge import Knowledge, read_knowledge, write_knowledge
+from .search import discover
+from .settings import PARAMETERS, SearchSettings
+
+__all__ = [
+    "discover", "Knowledge", "read_knowledge", "write_knowledge",
+    "SearchResult", "Edge", "Removal", "load_result", "ASSUMPTIONS",
+    "SearchSettings", "PARAMETERS",
+    "DSeparationOracle", "FisherZ", "PValueCache",
+    "DiscoveryError", "DataValidationError", "KnowledgeError", "SettingsError",
+    "ResultFormatError", "SearchCancelled", "DegenerateDataWarning", "SearchLimitWarning",
+]

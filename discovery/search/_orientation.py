@@ -1,0 +1,257 @@
+"""Orientation: knowledge first, then colliders, then Meek's rules to a fixed point.
+
+An *unshielded triple* ``x — z — y`` has ``x`` and ``y`` non-adjacent. If ``z`` is not in the
+set that separated ``x`` and ``y``, conditioning on ``z`` must have made them dependent, so
+``z`` is a common effect: the triple is a *collider* ``x → z ← y`` (Spirtes, Glymour & Scheines
+2000, *Causation, Prediction, and Search*). Three rules decide a triple:
+
+- ``standard``: collider iff ``z`` is not in the recorded separating set;
+- ``conservative``: look at every separating set of ``x`` and ``y`` among subsets of their
+  neighbours; collider if ``z`` is in none, non-collider if in all, else *ambiguous*
+  (Ramsey, Zhang & Spirtes 2006, "Adjacency-faithfulness and conservative causal inference",
+  UAI);
+- ``majority``: collider if ``z`` is in fewer than half of them, non-collider if in more than
+  half, ambiguous at exactly half (Colombo & Maathuis 2014, JMLR 15).
+
+When two colliders put arrowheads on both ends of one edge, the edge is marked **contested**
+and left so; it is never resolved by visiting order. Orientation rules do not use contested
+edges nor ambiguous triples.
+
+Meek's rules (Meek 1995, "Causal inference and causal explanation with background knowledge",
+UAI) then orient what must be oriented to avoid new colliders and cycles:
+
+1. ``a → b — c``, ``a``, ``c`` non-adjacent ⇒ ``b → c``;
+2. ``a → c → b`` and ``a — b`` ⇒ ``a → b``;
+3. ``a — c → b``, ``a — d → b``, ``c``, ``d`` non-adjacent, ``a — b`` ⇒ ``a → b``;
+4. ``a — b``, ``c → d → b``, ``a`` adjacent to ``c`` and ``d``, ``c``, ``b`` non-adjacent
+   ⇒ ``a → b``.
+
+Knowledge (locked and forbidden directions, stage order) is applied before colliders; a
+collider that contradicts it is refused and reported.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from itertools import combinations
+from typing import Callable
+
+__all__ = ["OrientationOutcome", "orient"]
+
+
+@dataclass
+class OrientationOutcome:
+    """Arrowheads with their reasons, triple decisions and conflicts (internal, index space)."""
+
+    heads: set[tuple[int, int]] = field(default_factory=set)        # (i, j): head at j
+    reasons: dict[tuple[int, int], tuple[str, str]] = field(default_factory=dict)
+    triples: list[dict] = field(default_factory=list)
+    conflicts: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+
+def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rule="standard",
+           locked_directions=(), why_forbidden: Callable[[int, int], str | None] = None,
+           separating_sets_of: Callable | None = None,
+           unseparated=()) -> OrientationOutcome:
+    """Orient the skeleton ``adjacent`` (list of neighbour sets) into a PDAG.
+
+    Parameters
+    ----------
+    sepsets : dict
+        ``(x, y) -> (S, p)`` with ``x < y``, the recorded separating set of each separated pair.
+    collider_rule : {"standard", "conservative", "majority"}
+    locked_directions : iterable of (int, int)
+        Required arrows.
+    why_forbidden : callable
+        ``why_forbidden(a, b)`` gives the reason a → b may not appear, or None.
+    separating_sets_of : callable
+        ``separating_sets_of(x, y) -> list of S`` every independent set among subsets of the
+        neighbours of x and y; required for the conservative and majority rules.
+    unseparated : iterable of (int, int)
+        Forbidden pairs for which no separating set was found: their triples stay undecided.
+    """
+    why_forbidden = why_forbidden or (lambda a, b: None)
+    out = OrientationOutcome()
+    locked = set(locked_directions)
+    unseparated = {(min(a, b), max(a, b)) for a, b in unseparated}
+    key = rank.__getitem__
+
+    def name_set(s):
+        return "{" + ", ".join(names[v] for v in sorted(s, key=key)) + "}"
+
+    # 1. knowledge -------------------------------------------------------------------------
+    for x in sorted(range(len(adjacent)), key=key):
+        for y in sorted(adjacent[x], key=key):
+            if key(y) < key(x):
+                continue
+            fxy, fyx = why_forbidden(x, y), why_forbidden(y, x)
+            if (x, y) in locked:
+                _set_arrow(out, x, y, ("knowledge", f"locked direction {names[x]} → {names[y]}"))
+            elif (y, x) in locked:
+                _set_arrow(out, y, x, ("knowledge", f"locked direction {names[y]} → {names[x]}"))
+            elif fxy and fyx:
+                out.conflicts.append(
+                    f"{names[x]} — {names[y]}: both directions are excluded by the knowledge "
+                    f"({fxy}; {fyx}) but the data keep the pair adjacent; left undirected")
+            elif fxy:
+                _set_arrow(out, y, x, _knowledge_reason(fxy, x, y, names))
+            elif fyx:
+                _set_arrow(out, x, y, _knowledge_reason(fyx, y, x, names))
+    knowledge_heads = set(out.heads)
+
+    # 2. unshielded triples and colliders --------------------------------------------------
+    proposed: dict[tuple[int, int], tuple[str, str]] = {}
+    ambiguous: set[tuple[int, int, int]] = set()
+    for z in sorted(range(len(adjacent)), key=key):
+        for x, y in combinations(sorted(adjacent[z], key=key), 2):
+            if y in adjacent[x]:
+                continue
+            pair = (min(x, y), max(x, y))
+            record = {"x": names[x], "z": names[z], "y": names[y]}
+            if pair in unseparated:
+                record.update(decision="ambiguous",
+                              reason=f"{names[x]} and {names[y]} are forbidden to be adjacent "
+                                     "but no separating set was found; left undecided")
+                ambiguous.add((x, z, y))
+                out.triples.append(record)
+                continue
+            sep, _ = sepsets[pair]
+            decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
+                                         names, name_set)
+            if decision == "collider":
+                refusal = _collider_refusal(x, z, y, locked, why_forbidden, names)
+                if refusal:
+                    decision = "refused"
+                    reason = f"{reason}; refused: {refusal}"
+                    out.conflicts.append(
+                        f"collider {names[x]} → {names[z]} ← {names[y]} refused: {refusal}")
+                else:
+                    for u in (x, y):
+                        proposed.setdefault(
+                            (u, z), ("collider", f"collider {names[x]} → {names[z]} ← "
+                                                 f"{names[y]}: {reason}"))
+            elif decision == "ambiguous":
+                ambiguous.add((x, z, y))
+            record.update(decision=decision, reason=reason)
+            out.triples.append(record)
+    for (u, z), reason in proposed.items():
+        if (u, z) not in knowledge_heads:
+            out.heads.add((u, z))
+            out.reasons[(u, z)] = reason
+    for u, v in sorted(out.heads, key=lambda e: (key(e[0]), key(e[1]))):
+        if (v, u) in out.heads and key(u) < key(v):
+            out.conflicts.append(f"{names[u]} — {names[v]}: colliders put arrowheads at both "
+                                 "ends; marked contested")
+
+    # 3. Meek's rules to a fixed point -----------------------------------------------------
+    _apply_meek_rules(adjacent, out, ambiguous, names, key)
+    return out
+
+
+def _knowledge_reason(why, a, b, names):
+    kind = "stage order" if why == "stage order" else "knowledge"
+    return (kind, f"{why}: {names[a]} → {names[b]} may not appear")
+
+
+def _set_arrow(out, a, b, reason):
+    out.heads.add((a, b))
+    out.reasons[(a, b)] = reason
+
+
+def _classify(x, z, y, sep, rule, separating_sets_of, names, name_set):
+    if rule == "standard":
+        if z in sep:
+            return "non-collider", f"{names[z]} is in the separating set {name_set(sep)}"
+        return "collider", f"{names[z]} is not in the separating set {name_set(sep)}"
+    sets = separating_sets_of(x, y) or [sep]
+    inside = sum(1 for s in sets if z in s)
+    share = f"{names[z]} is in {inside} of {len(sets)} separating sets"
+    if rule == "conservative":
+        if inside == 0:
+            return "collider", share
+        if inside == len(sets):
+            return "non-collider", share
+        return "ambiguous", share + " (conservative rule: undecided)"
+    if 2 * inside < len(sets):
+        return "collider", share
+    if 2 * inside > len(sets):
+        return "non-collider", share
+    return "ambiguous", share + " (majority rule: a tie)"
+
+
+def _collider_refusal(x, z, y, locked, why_forbidden, names):
+    for u in (x, y):
+        if (z, u) in locked:
+            return f"locked direction {names[z]} → {names[u]}"
+        why = why_forbidden(u, z)
+        if why:
+            return f"{why} excludes {names[u]} → {names[z]}"
+    return None
+
+
+def _apply_meek_rules(adjacent, out, ambiguous, names, key):
+    heads = out.heads
+
+    def directed(a, b):
+        return (a, b) in heads and (b, a) not in heads
+
+    def undirected(a, b):
+        return b in adjacent[a] and (a, b) not in heads and (b, a) not in heads
+
+    def not_ambiguous(a, m, c):
+        return (a, m, c) not in ambiguous and (c, m, a) not in ambiguous
+
+    def why_arrow(a, b):
+        """Reason a → b is forced, or None (a — b undirected)."""
+        for w in sorted(adjacent[a], key=key):
+            if directed(w, a) and b not in adjacent[w] and not_ambiguous(w, a, b):
+                return ("rule 1", f"rule 1: {names[w]} → {names[a]} — {names[b]}, "
+                                  f"{names[w]} and {names[b]} not adjacent")
+        for w in sorted(adjacent[a] & adjacent[b], key=key):
+            if directed(a, w) and directed(w, b):
+                return ("rule 2", f"rule 2: {names[a]} → {names[w]} → {names[b]}; "
+                                  "the other way would close a cycle")
+        parents_b = [w for w in sorted(adjacent[a] & adjacent[b], key=key)
+                     if undirected(a, w) and directed(w, b)]
+        for c, d in combinations(parents_b, 2):
+            if d not in adjacent[c] and not_ambiguous(c, a, d):
+                return ("rule 3", f"rule 3: {names[c]} → {names[b]} ← {names[d]} with "
+                                  f"{names[a]} — {names[c]} and {names[a]} — {names[d]}")
+        for d in sorted(adjacent[a] & adjacent[b], key=key):
+            if not directed(d, b):
+                continue
+            for c in sorted(adjacent[a] & adjacent[d], key=key):
+                if c != b and directed(c, d) and b not in adjacent[c]:
+                    return ("rule 4", f"rule 4: {names[c]} → {names[d]} → {names[b]} with "
+                                      f"{names[a]} adjacent to both, {names[c]} and "
+                                      f"{names[b]} not adjacent")
+        return None
+
+    while True:
+        found = {}
+        for a in range(len(adjacent)):
+            for b in adjacent[a]:
+                if undirected(a, b):
+                    reason = why_arrow(a, b)
+                    if reason:
+                        found[(a, b)] = reason
+        if not found:
+            return
+        progressed = False
+        for (a, b), reason in sorted(found.items(), key=lambda kv: (key(kv[0][0]),
+                                                                    key(kv[0][1]))):
+            if (b, a) in found:
+                if key(a) < key(b):
+                    out.conflicts.append(f"{names[a]} — {names[b]}: the rules force both "
+                                         "directions (inconsistent orientations); marked "
+                                         "contested")
+                heads.add((a, b))
+                out.reasons[(a, b)] = ("contested", reason[1])
+                progressed = True
+                continue
+            heads.add((a, b))
+            out.reasons[(a, b)] = reason
+            progressed = True
+        if not progressed:
+            return

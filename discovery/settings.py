@@ -1,0 +1,129 @@
+"""Search settings, declared once.
+
+:data:`PARAMETERS` is the one constraint table: :class:`SearchSettings` validates against it,
+the command line builds its options from it, and the window reads its ranges and choices, so
+the three can never disagree.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from numbers import Integral, Real
+
+from .exceptions import SettingsError
+
+__all__ = ["Interval", "Choice", "PARAMETERS", "SearchSettings", "COLLIDER_RULES",
+           "MISSING_POLICIES"]
+
+COLLIDER_RULES = ("standard", "conservative", "majority")
+MISSING_POLICIES = ("drop", "test-wise")
+
+
+@dataclass(frozen=True)
+class Interval:
+    """A numeric range: ``kind`` is int or float; ``None`` bounds are open-ended."""
+
+    kind: type
+    low: float | None
+    high: float | None
+    closed: str = "both"  # "both", "left", "right", "neither"
+    allow_none: bool = False
+    help: str = ""
+
+    def describe(self) -> str:
+        left = "[" if self.closed in ("both", "left") else "("
+        right = "]" if self.closed in ("both", "right") else ")"
+        lo = "-inf" if self.low is None else f"{self.low:g}"
+        hi = "inf" if self.high is None else f"{self.high:g}"
+        name = "an int" if self.kind is int else "a float"
+        return f"{name} in {left}{lo}, {hi}{right}" + (" or None" if self.allow_none else "")
+
+    def accepts(self, value) -> bool:
+        if value is None:
+            return self.allow_none
+        if isinstance(value, bool):
+            return False
+        if self.kind is int and not isinstance(value, Integral):
+            return False
+        if not isinstance(value, Real) or math.isnan(value):
+            return False
+        if self.low is not None:
+            if value < self.low or (value == self.low and self.closed in ("right", "neither")):
+                return False
+        if self.high is not None:
+            if value > self.high or (value == self.high and self.closed in ("left", "neither")):
+                return False
+        return True
+
+
+@dataclass(frozen=True)
+class Choice:
+    """One of a fixed set of strings."""
+
+    options: tuple[str, ...]
+    help: str = ""
+
+    def describe(self) -> str:
+        return "one of " + ", ".join(repr(o) for o in self.options)
+
+    def accepts(self, value) -> bool:
+        return value in self.options
+
+
+def _test_choice() -> Choice:
+    from .independence import TEST_NAMES
+    return Choice(tuple(TEST_NAMES) + ("d-separation",),
+                  "independence test; 'd-separation' needs a DSeparationOracle")
+
+
+#: The constraint table of the search's settings.
+PARAMETERS = {
+    "alpha": Interval(float, 0.0, 1.0, "neither",
+                      help="significance level: a pair is independent when p > alpha"),
+    "max_depth": Interval(int, 0, None, "left", allow_none=True,
+                          help="largest conditioning-set size (None: no limit)"),
+    "collider_rule": Choice(COLLIDER_RULES, "how unshielded triples are judged colliders"),
+    "missing": Choice(MISSING_POLICIES, "drop incomplete rows, or delete test-wise"),
+}
+
+
+def check_parameter(name: str, value, *, owner: str = "discover"):
+    """Raise SettingsError unless ``value`` satisfies the constraint named ``name``."""
+    constraint = _test_choice() if name == "test" else PARAMETERS[name]
+    if not constraint.accepts(value):
+        raise SettingsError(f"The {name!r} parameter of {owner} must be "
+                            f"{constraint.describe()}. Got {value!r} instead.")
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """Validated settings of one search (frozen).
+
+    Raises
+    ------
+    SettingsError
+        When a value is outside its constraint in :data:`PARAMETERS`.
+    """
+
+    test: str = "fisher-z"
+    alpha: float = 0.05
+    max_depth: int | None = None
+    collider_rule: str = "standard"
+    missing: str = "drop"
+
+    def __post_init__(self):
+        for name in ("test", "alpha", "max_depth", "collider_rule", "missing"):
+            check_parameter(name, getattr(self, name))
+        object.__setattr__(self, "alpha", float(self.alpha))
+        if self.max_depth is not None:
+            object.__setattr__(self, "max_depth", int(self.max_depth))
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, values: dict) -> "SearchSettings":
+        known = {k: values[k] for k in ("test", "alpha", "max_depth", "collider_rule",
+                                        "missing") if k in values}
+        return cls(**known)
