@@ -26,6 +26,7 @@ This package never imports Qt.
 
 __version__ = "0.1.0"
 
+from .data import Dataset, check_for_search, column_kind, prepare_frame, read_table
 from .exceptions import (DataValidationError, DegenerateDataWarning, DiscoveryError,
                          KnowledgeError, ResultFormatError, SearchCancelled,
                          SearchLimitWarning, SettingsError)
@@ -36,7 +37,8 @@ from .search import discover
 from .settings import PARAMETERS, SearchSettings
 
 __all__ = [
-    "discover", "Knowledge", "read_knowledge", "write_knowledge",
+    "discover", "read_table", "prepare_frame", "Dataset", "column_kind", "check_for_search",
+    "Knowledge", "read_knowledge", "write_knowledge",
     "SearchResult", "Edge", "Removal", "load_result", "ASSUMPTIONS",
     "SearchSettings", "PARAMETERS",
     "DSeparationOracle", "FisherZ", "PValueCache",

@@ -124,6 +124,7 @@ _MIN_ROWS = 5
 
 # Singular values of the standardized data matrix below this share of the largest one mark
 # an exact linear dependence (rounding in double precision stays near 1e-15).
+_SCREEN_RTOL = 1e-9  # smallest Cholesky pivot below which the exact SVD check runs
 _COLLINEAR_RTOL = 1e-10
 
 _TEXT_SUFFIXES = {".csv": ",", ".tsv": "\t", ".tab": "\t"}
@@ -183,7 +184,7 @@ class Dataset:
         The path as given to :func:`read_table`; ``None`` for an in-memory frame.
     sha256 : str
         SHA-256 (hex) of the file's bytes, or of the in-memory frame's CSV rendering
-        (``frame.to_csv(index=False)``, UTF-8, ``\\n`` line ends).
+        (column names and values; see :func:`prepare_frame`).
     rows_read, rows_used : int
         Data rows in the input, and rows in :attr:`frame`.
     missing : str
@@ -536,6 +537,21 @@ def _check_shape(text: str, label: str, sep: str) -> list[str]:
 
 # --------------------------------------------------------------------------- preparing
 
+def _frame_fingerprint(frame: pd.DataFrame) -> str:
+    """SHA-256 of the column names and values: numeric columns as float64 bytes, any other
+    column as its CSV text (a canonical rendering that is cheap for large numeric tables)."""
+    digest = hashlib.sha256()
+    for i, name in enumerate(frame.columns):
+        column = frame.iloc[:, i]
+        digest.update(str(name).encode("utf-8") + b"\x00")
+        if pd.api.types.is_numeric_dtype(column.dtype) and not \
+                pd.api.types.is_bool_dtype(column.dtype):
+            digest.update(np.ascontiguousarray(column.to_numpy(dtype=float)).tobytes())
+        else:
+            digest.update(column.to_csv(index=False, lineterminator="\n").encode("utf-8"))
+    return digest.hexdigest()
+
+
 def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
                   source: str | None = None) -> Dataset:
     """Apply the reading rules to an in-memory table.
@@ -553,7 +569,8 @@ def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
     Returns
     -------
     Dataset
-        Its :attr:`~Dataset.sha256` is the fingerprint of ``frame.to_csv(index=False)``.
+        Its :attr:`~Dataset.sha256` is the fingerprint of the column names and values
+        (numeric columns as float64 bytes, others as CSV text).
 
     Raises
     ------
@@ -576,8 +593,7 @@ def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
         raise _fail(label, "the table has no columns")
     if len(frame) == 0:
         raise _fail(label, "the table has no rows")
-    rendering = frame.to_csv(index=False, lineterminator="\n").encode("utf-8")
-    digest = hashlib.sha256(rendering).hexdigest()
+    digest = _frame_fingerprint(frame)
     dataset, warns = _prepare(frame, columns=columns, exclude=exclude, missing=missing,
                               source=source, label=label, sha256=digest)
     for message in warns:
@@ -628,6 +644,52 @@ def _looks_like_identifier(series: pd.Series) -> bool:
     return not pd.api.types.is_bool_dtype(series.dtype)
 
 
+def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool]]:
+    """Kind, distinct-level count and "all whole numbers" of every float64 column, computed
+    with numpy for the whole table at once (large numeric tables are the common case).
+
+    Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
+    """
+    floats = [n for n in names if table[n].dtype == np.float64]
+    if not floats:
+        return {}
+    values = table[floats].to_numpy()
+    out = {}
+    with np.errstate(invalid="ignore"):
+        lo, hi = np.nanmin(np.where(np.isnan(values), np.inf, values), axis=0), \
+            np.nanmax(np.where(np.isnan(values), -np.inf, values), axis=0)
+        finite = np.isfinite(values) | np.isnan(values)
+        whole = np.all(np.isnan(values) | (finite & (values == np.round(values))), axis=0)
+        two = np.all(np.isnan(values) | (values == lo) | (values == hi), axis=0)
+    for j, n in enumerate(floats):
+        if np.isinf(lo[j]) and np.isinf(hi[j]) and lo[j] > hi[j]:
+            out[n] = ("continuous", 0, True)  # all missing
+        elif lo[j] == hi[j]:
+            out[n] = ("continuous", 1, bool(whole[j]))
+        elif two[j]:
+            out[n] = ("binary", 2, bool(whole[j]))
+        elif whole[j] or not np.all(np.isfinite(values[:, j][~np.isnan(values[:, j])])):
+            column = table[n]
+            out[n] = (column_kind(column), int(column.nunique(dropna=True)), bool(whole[j]))
+        else:
+            out[n] = ("continuous", _ORDINAL_MAX_LEVELS + 2, False)
+    return out
+
+
+def _flat_columns(block: pd.DataFrame) -> list[str]:
+    """Columns of ``block`` with fewer than two distinct values."""
+    out = []
+    for n in block.columns:
+        column = block[n]
+        if column.dtype == np.float64:
+            v = column.to_numpy()
+            if len(v) == 0 or v.min() == v.max():
+                out.append(n)
+        elif column.nunique() < 2:
+            out.append(n)
+    return out
+
+
 def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str | None,
              label: str, sha256: str) -> tuple[Dataset, list[str]]:
     names = [str(c) for c in frame.columns]
@@ -645,9 +707,11 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     _check_known(dropped, "exclude", names, label)
 
     rows_read = len(table)
-    kinds = {n: column_kind(table[n]) for n in names}
+    fast = _float_profile(table, names)
+    kinds = {n: fast[n][0] if n in fast else column_kind(table[n]) for n in names}
     missing_share = {n: float(table[n].isna().mean()) for n in names}
-    levels = {n: int(table[n].nunique(dropna=True)) for n in names}
+    levels = {n: fast[n][1] if n in fast else int(table[n].nunique(dropna=True))
+              for n in names}
 
     excluded: dict[str, str] = {}
     for n in names:
@@ -689,7 +753,7 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
                                    f"columns with the most missing values (e.g. {worst!r}, "
                                    f"{100 * missing_share[worst]:.0f}% missing) or use the "
                                    f"test-wise missing policy")
-            flat = [n for n in used if table.loc[complete, n].nunique() < 2]
+            flat = _flat_columns(table.loc[complete, used])
             if not flat:
                 break
             for n in flat:
@@ -721,6 +785,8 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     kept = kept.reset_index(drop=True)
 
     for n in used:
+        if n in fast and fast[n][2] is False:
+            continue  # a float column with fractional values is no identifier
         if _looks_like_identifier(kept[n]):
             notes.append(f"column {n!r} has a different value in every row (a row number or "
                          f"a code?); if it is an identifier, leave it out")
@@ -757,7 +823,23 @@ def _text_values(series: pd.Series) -> list:
     return list(dict.fromkeys(values[as_numbers.isna()].tolist()))
 
 
-def _collinear_groups(values: np.ndarray, names: list[str]) -> list[list[str]]:
+def _clearly_independent(correlation: np.ndarray) -> bool:
+    """True when no column of a correlation matrix is close to a linear function of others.
+
+    Cholesky pivots squared are the ratios det(C[:k+1]) / det(C[:k]) (the share of a column's
+    variance left after regressing it on the earlier ones); a clearly positive smallest one
+    rules out exact collinearity at a third of the cost of an eigenvalue decomposition.
+    """
+    if not np.isfinite(correlation).all():
+        return False
+    try:
+        return bool((np.diag(np.linalg.cholesky(correlation)) ** 2).min() > _SCREEN_RTOL)
+    except np.linalg.LinAlgError:
+        return False
+
+
+def _collinear_groups(values: np.ndarray, names: list[str],
+                      correlation: np.ndarray | None = None) -> list[list[str]]:
     """Groups of columns tied by an exact linear relation, from the data's null space.
 
     The columns are standardized, so scale and offset do not matter; singular values of the
@@ -768,12 +850,19 @@ def _collinear_groups(values: np.ndarray, names: list[str]) -> list[list[str]]:
     n, p = values.shape
     if p < 2 or n <= p:
         return []  # with no more rows than columns every set of columns is dependent
+    if correlation is not None and correlation.shape == (p, p) and _clearly_independent(
+            correlation):
+        return []
     spread = values.std(axis=0)
     keep = spread > 0
     if keep.sum() < 2:
         return []
     z = (values[:, keep] - values[:, keep].mean(axis=0)) / spread[keep]
     kept_names = [nm for nm, k in zip(names, keep) if k]
+    # Cheap screen first: only a correlation matrix close to singular calls for the exact
+    # (costly) SVD below.
+    if _clearly_independent(z.T @ z / n):
+        return []
     _, s, vt = np.linalg.svd(z / np.sqrt(n), full_matrices=False)
     null = vt[s <= _COLLINEAR_RTOL * s[0]]
     if len(null) == 0:
@@ -803,7 +892,8 @@ def _collinear_groups(values: np.ndarray, names: list[str]) -> list[list[str]]:
     return [[kept_names[i] for i in sorted(g)] for g in groups if len(g) > 1]
 
 
-def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None = None) -> None:
+def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None = None,
+                     collinearity: bool = True) -> None:
     """Check that a dataset can be searched with the chosen independence test.
 
     Parameters
@@ -885,17 +975,35 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
                            f"needs at least {max_depth + _FISHER_Z_EXTRA_ROWS}; lower "
                            f"--max-depth to {deepest} or less, or add rows")
 
-    if fisher:
-        numeric = [c for c in dataset.variables
-                   if _is_numeric(frame[c]) or pd.api.types.is_bool_dtype(frame[c].dtype)]
-        complete = frame[numeric].dropna()
+    if fisher and collinearity:
+        check_collinearity(dataset)
+
+
+def check_collinearity(dataset: Dataset, *, correlation=None) -> None:
+    """Raise DataValidationError naming perfectly collinear numeric columns.
+
+    ``correlation``, when given, is the correlation matrix of ``dataset.variables`` (in that
+    order) that a test has already computed; it makes the common case (no collinearity)
+    cost one small eigenvalue decomposition.
+    """
+    frame = dataset.frame
+    numeric = [c for c in dataset.variables
+               if _is_numeric(frame[c]) or pd.api.types.is_bool_dtype(frame[c].dtype)]
+    if len(numeric) != len(dataset.variables):
+        correlation = None
+    complete = frame[numeric].dropna()
+    if len(complete) != len(frame):
+        correlation = None
+    if all(complete[c].dtype == np.float64 for c in numeric):
+        values = complete.to_numpy(dtype=float)
+    else:
         values = complete.apply(pd.to_numeric).to_numpy(dtype=float)
-        groups = _collinear_groups(values, numeric)
-        if groups:
-            where = " in the complete rows" if dataset.missing == "test-wise" else ""
-            also = "".join(f", and so are {_quote_list(g)}" for g in groups[1:])
-            which = "one of them" if len(groups) == 1 else "one column from each group"
-            raise _fail(label, f"columns {_quote_list(groups[0])} are perfectly collinear"
-                               f"{where} (one is an exact linear combination of the others)"
-                               f"{also}; Fisher's z cannot separate them — drop {which}, "
-                               f"e.g. with --columns")
+    groups = _collinear_groups(values, numeric, correlation)
+    if groups:
+        where = " in the complete rows" if dataset.missing == "test-wise" else ""
+        also = "".join(f", and so are {_quote_list(g)}" for g in groups[1:])
+        which = "one of them" if len(groups) == 1 else "one column from each group"
+        raise _fail(dataset.label, f"columns {_quote_list(groups[0])} are perfectly collinear"
+                                   f"{where} (one is an exact linear combination of the "
+                                   f"others){also}; Fisher's z cannot separate them — drop "
+                                   f"{which}, e.g. with --columns")

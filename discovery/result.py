@@ -16,15 +16,16 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
-from typing import Mapping
+from typing import Mapping, Sequence
 
 import networkx as nx
+import numpy as np
 
 from .exceptions import ResultFormatError
 from .knowledge import Knowledge
 from .settings import SearchSettings
 
-__all__ = ["Edge", "Removal", "TestRecord", "PairEvidence", "SearchResult", "Summary",
+__all__ = ["Edge", "Removal", "TestLog", "TestRecord", "PairEvidence", "SearchResult", "Summary",
            "load_result", "ASSUMPTIONS"]
 
 FORMAT = "edgewise-result"
@@ -43,6 +44,93 @@ ASSUMPTIONS = (
     "The output is a set of hypotheses to weigh with study design and domain expertise; it is "
     "not on its own a basis for medical, safety, legal or policy decisions.",
 )
+
+
+class TestLog(Sequence):
+    """Every test run by a search, stored compactly; reads as ``(x, y, given, pvalue)`` tuples.
+
+    The log is kept as blocks of index rows ``[x, y, s1..sk]`` with their p-values; tuples of
+    names are produced on first access, so a search that runs hundreds of thousands of tests
+    does not pay for tuples nobody reads.
+    """
+
+    __slots__ = ("_names", "_blocks", "_rows")
+
+    def __init__(self, names, blocks):
+        self._names = tuple(names)
+        self._blocks = tuple((np.asarray(i, dtype=np.intp), np.asarray(p, dtype=float))
+                             for i, p in blocks)
+        for i, p in self._blocks:
+            i.setflags(write=False)
+            p.setflags(write=False)
+        self._rows = None
+
+    @classmethod
+    def from_blocks(cls, names, blocks) -> "TestLog":
+        return cls(names, blocks)
+
+    @classmethod
+    def from_rows(cls, rows) -> "TestLog":
+        """Build from ``(x, y, given, pvalue)`` tuples of names, keeping their order."""
+        names: dict[str, int] = {}
+        blocks, current, pvals, width = [], [], [], None
+        for x, y, given, p in rows:
+            ids = [names.setdefault(v, len(names)) for v in (x, y, *given)]
+            if width is not None and len(ids) != width:
+                blocks.append((np.array(current).reshape(-1, width), pvals))
+                current, pvals = [], []
+            width = len(ids)
+            current.append(ids)
+            pvals.append(p)
+        if current:
+            blocks.append((np.array(current).reshape(-1, width), pvals))
+        return cls(names, blocks)
+
+    def _materialise(self):
+        if self._rows is None:
+            n = self._names
+            rows = []
+            for idx, p in self._blocks:
+                for r, pv in zip(idx.tolist(), p.tolist()):
+                    rows.append((n[r[0]], n[r[1]], tuple(n[v] for v in r[2:]), pv))
+            self._rows = tuple(rows)
+        return self._rows
+
+    def __len__(self):
+        return sum(len(p) for _, p in self._blocks)
+
+    def __getitem__(self, i):
+        return self._materialise()[i]
+
+    def __iter__(self):
+        return iter(self._materialise())
+
+    def __eq__(self, other):
+        if isinstance(other, TestLog):
+            return len(self) == len(other) and self._materialise() == other._materialise()
+        return NotImplemented
+
+    def __hash__(self):
+        return hash(self._materialise())
+
+    def __repr__(self):
+        return f"TestLog({len(self)} tests)"
+
+    def count_nan(self) -> int:
+        return int(sum(np.isnan(p).sum() for _, p in self._blocks))
+
+    def of_pair(self, a: str, b: str) -> list[tuple[tuple[str, ...], float]]:
+        """The (conditioning set, p-value) of every test run on the pair {a, b}."""
+        try:
+            ia, ib = self._names.index(a), self._names.index(b)
+        except ValueError:
+            return []
+        out = []
+        for idx, p in self._blocks:
+            mask = ((idx[:, 0] == ia) & (idx[:, 1] == ib)) | ((idx[:, 0] == ib) & (idx[:, 1] == ia))
+            for r, pv in zip(idx[mask].tolist(), p[mask].tolist()):
+                out.append((tuple(self._names[v] for v in r[2:]), pv))
+        return out
 
 
 @dataclass(frozen=True)
@@ -189,7 +277,7 @@ class SearchResult:
     knowledge: Knowledge
     edges: tuple[Edge, ...]
     removed: tuple[Removal, ...]
-    tests: tuple[tuple, ...]
+    tests: TestLog
     triples: tuple[Mapping, ...] = ()
     conflicts: tuple[str, ...] = ()
     notes: tuple[str, ...] = ()
@@ -203,6 +291,8 @@ class SearchResult:
         for name in ("counts", "timings", "data", "software"):
             object.__setattr__(self, name, _freeze(getattr(self, name)))
         object.__setattr__(self, "triples", tuple(_freeze(t) for t in self.triples))
+        if not isinstance(self.tests, TestLog):
+            object.__setattr__(self, "tests", TestLog.from_rows(self.tests))
 
     # -- queries ------------------------------------------------------------------------------
     def edge(self, a: str, b: str) -> Edge | None:
@@ -223,7 +313,7 @@ class SearchResult:
             if v not in self.variables:
                 raise KeyError(f"variable {v!r} is not in the result")
         pair = {a, b}
-        tests = tuple(TestRecord(tuple(s), p) for x, y, s, p in self.tests if {x, y} == pair)
+        tests = tuple(TestRecord(s, p) for s, p in self.tests.of_pair(a, b))
         removal = next((r for r in self.removed if {r.a, r.b} == pair), None)
         triples = tuple(t for t in self.triples if {t["x"], t["y"]} == pair
                         or (t["z"] in pair and (t["x"] in pair or t["y"] in pair)))
@@ -347,7 +437,8 @@ def _from_dict(doc, source) -> SearchResult:
             sep = r.get("separating_set")
             removed.append(Removal(r["a"], r["b"], None if sep is None else tuple(sep),
                                    _float(r.get("pvalue")), r.get("by", "test")))
-        tests = tuple((x, y, tuple(s), _float(p)) for x, y, s, p in doc["evidence"]["tests"])
+        tests = TestLog.from_rows((x, y, tuple(s), _float(p))
+                                  for x, y, s, p in doc["evidence"]["tests"])
     except ResultFormatError:
         raise
     except (KeyError, TypeError, ValueError) as err:
@@ -388,12 +479,14 @@ class Summary:
     def notes(self) -> list[str]:
         r = self.result
         notes = list(r.conflicts) + list(r.notes)
-        nan_tests = sum(1 for t in r.tests if t[3] != t[3])
+        nan_tests = r.tests.count_nan()
         if nan_tests:
             notes.append(f"{nan_tests} test(s) returned NaN and were read as 'not independent'")
         return notes
 
-    def as_text(self) -> str:
+    def as_text(self, *, assumptions: bool = True) -> str:
+        """The summary as plain text; ``assumptions=False`` leaves out the closing paragraph
+        of assumptions (the command line prints a short caution instead)."""
         r = self.result
         c = r.counts
         head = (f"Edgewise search: {len(r.variables)} variables"
@@ -416,7 +509,8 @@ class Summary:
         notes = self.notes()
         if notes:
             lines += ["", "Notes:"] + [f"[{i}] {n}" for i, n in enumerate(notes, 1)]
-        lines += ["", "Assumptions: " + " ".join(ASSUMPTIONS)]
+        if assumptions:
+            lines += ["", "Assumptions: " + " ".join(ASSUMPTIONS)]
         return "\n".join(lines)
 
     def as_html(self) -> str:

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import threading
 from dataclasses import dataclass
+from itertools import chain
 from typing import Iterable, Sequence
 
 import numpy as np
@@ -24,6 +25,7 @@ __all__ = [
     "IndependenceTest",
     "PValueCache",
     "canonical_triple",
+    "group_by_size",
 ]
 
 Triple = tuple  # (x: int, y: int, given: tuple[int, ...])
@@ -34,6 +36,23 @@ def canonical_triple(x: int, y: int, given: Iterable[int]) -> tuple[int, int, tu
     if x > y:
         x, y = y, x
     return (int(x), int(y), tuple(sorted(int(s) for s in given)))
+
+
+def group_by_size(triples: Sequence[Triple]) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Split a batch by conditioning-set size into ``(rows, idx)`` arrays.
+
+    ``rows`` are positions in the batch; ``idx`` has one row ``[x, y, s1, ..., sk]`` per test.
+    Tests use it to stack a batch into numpy arrays without a Python loop per test.
+    """
+    sizes = np.fromiter((len(t[2]) for t in triples), dtype=np.intp, count=len(triples))
+    out = []
+    for size in np.unique(sizes):
+        rows = np.flatnonzero(sizes == size)
+        chosen = triples if len(rows) == len(triples) else [triples[i] for i in rows]
+        flat = np.fromiter(chain.from_iterable((t[0], t[1], *t[2]) for t in chosen),
+                           dtype=np.intp, count=len(rows) * (int(size) + 2))
+        out.append((rows, flat.reshape(len(rows), int(size) + 2)))
+    return out
 
 
 @dataclass(frozen=True, slots=True)
@@ -74,10 +93,12 @@ class IndependenceResult:
 class IndependenceTest:
     """Base class of the batch protocol.
 
-    Subclasses set ``name`` and ``variables`` and implement :meth:`_batch`, returning the
-    statistics and p-values of a batch of canonical triples. They also implement
-    :meth:`settings_key`, a hashable description of everything that changes a p-value
-    (data fingerprint, kernel widths, seeds, ...), which keys the shared cache.
+    A batch is an integer array ``idx`` of shape ``(m, k + 2)``: one row ``[x, y, s1..sk]`` per
+    test, ``x < y`` and the ``s`` ascending (every row of a batch has the same set size ``k``).
+    Subclasses implement either :meth:`_batch_array` (vectorised, preferred) or
+    :meth:`_batch` (a list of ``(x, y, S)`` triples), returning statistics and p-values. They
+    also implement :meth:`settings_key`, a hashable description of everything that changes a
+    p-value (data fingerprint, kernel widths, seeds, ...), which keys the shared cache.
 
     Attributes
     ----------
@@ -87,12 +108,14 @@ class IndependenceTest:
         The variables, in the order the triples address them.
     n : int or None
         Number of rows (None when the test is not computed from data).
+    vectorised : bool
+        True when a batch is one cheap numpy computation that should stay in-process; the
+        search then sends whole levels at once. False spreads batches over the executor.
     """
 
     name: str = "abstract"
     variables: tuple[str, ...] = ()
     n: int | None = None
-    #: True when the test is a cheap vectorised computation that should stay in-process.
     vectorised: bool = True
 
     # -- to implement -------------------------------------------------------------------------
@@ -102,10 +125,34 @@ class IndependenceTest:
 
     def _batch(self, triples: Sequence[Triple]) -> tuple[np.ndarray, np.ndarray]:
         """Statistics and p-values (two float arrays) for canonical triples."""
-        raise NotImplementedError
+        return self._batch_array_grouped(triples)
+
+    def _batch_array(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Statistics and p-values for an index array of one set size."""
+        triples = [(int(r[0]), int(r[1]), tuple(int(v) for v in r[2:])) for r in idx]
+        return self._batch(triples)
+
+    def _batch_array_grouped(self, triples):
+        if type(self)._batch_array is IndependenceTest._batch_array:
+            raise NotImplementedError("implement _batch or _batch_array")
+        stat = np.full(len(triples), np.nan)
+        pval = np.full(len(triples), np.nan)
+        for rows, idx in group_by_size(triples):
+            stat[rows], pval[rows] = self._batch_array(idx)
+        return stat, pval
+
+    def association(self) -> np.ndarray | None:
+        """Optional: a symmetric matrix of association strengths between the variables.
+
+        The search tries the conditioning variables most associated with both members of a
+        pair first, which finds separating sets with fewer tests. None (the default) lets the
+        search use ``1 - p`` of the unconditional tests instead.
+        """
+        return None
 
     # -- provided -----------------------------------------------------------------------------
-    def pvalues(self, triples: Sequence[Triple], *, executor=None) -> np.ndarray:
+    def pvalues(self, triples: Sequence[Triple], *, executor=None,
+                canonical: bool = False) -> np.ndarray:
         """Return the p-values of a batch of triples, as a float array in the batch's order.
 
         Parameters
@@ -114,14 +161,25 @@ class IndependenceTest:
             The tests to run.
         executor : discovery.executor.Executor, optional
             Where to spread the work. Vectorised tests ignore it and compute in-process.
+        canonical : bool
+            The caller promises ``x < y`` and ascending sets (skips re-sorting).
         """
-        canon = [canonical_triple(*t) for t in triples]
-        if not canon:
+        canon = list(triples) if canonical else [canonical_triple(*t) for t in triples]
+        out = np.full(len(canon), np.nan)
+        for rows, idx in group_by_size(canon):
+            out[rows] = self.pvalues_array(idx, executor=executor)
+        return out
+
+    def pvalues_array(self, idx: np.ndarray, *, executor=None) -> np.ndarray:
+        """p-values for an index array of canonical rows ``[x, y, s1..sk]`` (one set size)."""
+        idx = np.asarray(idx, dtype=np.intp)
+        if len(idx) == 0:
             return np.empty(0)
-        if executor is None or self.vectorised or len(canon) < 2:
-            return np.asarray(self._batch(canon)[1], dtype=float)
-        parts = executor.chunks(canon)
-        results = executor.map(_pvalues_of_chunk, [(self, part) for part in parts])
+        if executor is None or self.vectorised or len(idx) < 2 or executor.jobs == 1:
+            return np.asarray(self._batch_array(idx)[1], dtype=float)
+        parts = executor.chunks(range(len(idx)))
+        results = executor.map(_pvalues_of_chunk, [(self, idx[part[0]:part[-1] + 1])
+                                                   for part in parts])
         return np.concatenate([np.asarray(r, dtype=float) for r in results])
 
     def test(self, x: str, y: str, given: Iterable[str] = ()) -> IndependenceResult:
@@ -134,7 +192,8 @@ class IndependenceTest:
         if x == y or x in given or y in given:
             raise ValueError("`x`, `y` and `given` must name different variables")
         triple = canonical_triple(index[x], index[y], [index[g] for g in given])
-        stat, p = self._batch([triple])
+        stat, p = self._batch_array(np.array([[triple[0], triple[1], *triple[2]]],
+                                             dtype=np.intp))
         return IndependenceResult(float(stat[0]), float(p[0]), x, y, given, self.n, self.name)
 
     def __repr__(self) -> str:
@@ -143,42 +202,120 @@ class IndependenceTest:
 
 def _pvalues_of_chunk(args):
     test, part = args
-    return test._batch(part)[1]
+    return test._batch_array(part)[1]
+
+
+class _SizeTable:
+    """p-values of one test and one set size, keyed by rows packed into int64.
+
+    Keys live in a few sorted runs (searched with ``np.searchsorted``); a new batch adds a
+    run, and runs are merged only when there are many, so inserting costs little even when a
+    level is answered in many small batches.
+    """
+
+    _MAX_RUNS = 6
+
+    def __init__(self, n_vars: int, width: int):
+        self.bits = max(1, int(n_vars).bit_length())
+        self.packable = self.bits * width <= 62
+        self.runs: list[tuple[np.ndarray, np.ndarray]] = []
+        self.fallback: dict[bytes, float] = {}
+
+    def pack(self, idx: np.ndarray) -> np.ndarray:
+        key = np.zeros(len(idx), dtype=np.int64)
+        for k in range(idx.shape[1]):
+            key |= idx[:, k].astype(np.int64) << (self.bits * k)
+        return key
+
+    def lookup(self, idx):
+        """(values with NaN where unknown, mask of known, packed keys or None)."""
+        if not self.packable:
+            got = [self.fallback.get(r.tobytes()) for r in idx]
+            known = np.array([g is not None for g in got], dtype=bool)
+            return np.array([np.nan if g is None else g for g in got], dtype=float), known, None
+        keys = self.pack(idx)
+        values = np.full(len(keys), np.nan)
+        known = np.zeros(len(keys), dtype=bool)
+        for run_keys, run_values in self.runs:
+            pos = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
+            hit = run_keys[pos] == keys
+            values[hit] = run_values[pos[hit]]
+            known |= hit
+        return values, known, keys
+
+    def store(self, idx, keys, values):
+        if not self.packable:
+            for r, v in zip(idx, values):
+                self.fallback[r.tobytes()] = float(v)
+            return
+        order = np.argsort(keys, kind="stable")
+        self.runs.append((keys[order], np.asarray(values, dtype=float)[order]))
+        if len(self.runs) > self._MAX_RUNS:
+            merged = np.concatenate([k for k, _ in self.runs])
+            vals = np.concatenate([v for _, v in self.runs])
+            order = np.argsort(merged, kind="stable")
+            self.runs = [(merged[order], vals[order])]
+
+    def __len__(self):
+        return sum(len(k) for k, _ in self.runs) + len(self.fallback)
 
 
 class PValueCache:
     """Thread-safe store of p-values keyed by test settings and the canonical triple.
 
     One cache can serve many searches: a knowledge edit, a new α or a re-run reuses every
-    p-value already known for the same test settings.
+    p-value already known for the same test settings. Lookups and inserts are vectorised
+    (rows packed into 64-bit keys, kept sorted), so the cache costs little even for the
+    hundreds of thousands of tests of a large search.
     """
 
     def __init__(self):
-        self._store: dict[tuple, dict[tuple, float]] = {}
+        self._store: dict[tuple, _SizeTable] = {}
         self._lock = threading.Lock()
         self.hits = 0
         self.misses = 0
 
     def pvalues(self, test: IndependenceTest, triples: Sequence[Triple], *,
-                executor=None) -> np.ndarray:
-        """Return p-values for the triples, computing only those not yet in the cache."""
-        key = test.settings_key()
-        canon = [canonical_triple(*t) for t in triples]
+                executor=None, canonical: bool = False) -> np.ndarray:
+        """Return p-values for a list of triples, computing only those not yet known."""
+        canon = triples if canonical else [canonical_triple(*t) for t in triples]
+        out = np.full(len(canon), np.nan)
+        for rows, idx in group_by_size(canon):
+            out[rows] = self.pvalues_array(test, idx, executor=executor)
+        return out
+
+    def pvalues_array(self, test: IndependenceTest, idx: np.ndarray, *,
+                      executor=None) -> np.ndarray:
+        """Return p-values for canonical index rows of one set size (see IndependenceTest)."""
+        idx = np.asarray(idx, dtype=np.intp)
+        if len(idx) == 0:
+            return np.empty(0)
+        key = (test.settings_key(), idx.shape[1])
         with self._lock:
-            table = self._store.setdefault(key, {})
-            known = [table.get(t) for t in canon]
-        todo = sorted({t for t, p in zip(canon, known) if p is None})
-        if todo:
-            fresh = test.pvalues(todo, executor=executor)
-            with self._lock:
-                table.update(zip(todo, (float(p) for p in fresh)))
-                self.misses += len(todo)
-                self.hits += len(canon) - len(todo)
-                known = [table[t] for t in canon]
-        else:
-            with self._lock:
-                self.hits += len(canon)
-        return np.asarray(known, dtype=float)
+            table = self._store.get(key)
+            if table is None:
+                table = self._store[key] = _SizeTable(len(test.variables), idx.shape[1])
+            values, known, keys = table.lookup(idx)
+        todo = np.flatnonzero(~known)
+        if len(todo):
+            if keys is not None:
+                # compute each distinct missing row once
+                uniq, first, inverse = np.unique(keys[todo], return_index=True,
+                                                 return_inverse=True)
+                rows = todo[first]
+                fresh = test.pvalues_array(idx[rows], executor=executor)
+                values[todo] = fresh[inverse]
+                with self._lock:
+                    table.store(idx[rows], uniq, fresh)
+            else:
+                fresh = test.pvalues_array(idx[todo], executor=executor)
+                values[todo] = fresh
+                with self._lock:
+                    table.store(idx[todo], None, fresh)
+        with self._lock:
+            self.misses += len(todo)
+            self.hits += len(idx) - len(todo)
+        return values
 
     def __len__(self) -> int:
         with self._lock:

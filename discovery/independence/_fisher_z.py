@@ -94,33 +94,26 @@ class FisherZ(IndependenceTest):
             raise DataValidationError("no single correlation matrix under test-wise deletion")
         return self._corr
 
+    def association(self):
+        """Absolute correlations (complete data), to order conditioning candidates."""
+        return None if self._corr is None else np.abs(self._corr)
+
     def settings_key(self) -> tuple:
         return self._key
 
-    def _batch(self, triples):
-        m = len(triples)
-        stat = np.full(m, np.nan)
-        pval = np.full(m, np.nan)
-        # Group by conditioning-set size so each group stacks into one array of submatrices.
-        by_size: dict[int, list[int]] = {}
-        for i, t in enumerate(triples):
-            by_size.setdefault(len(t[2]), []).append(i)
-        for size, rows in by_size.items():
-            idx = np.array([(triples[i][0], triples[i][1], *triples[i][2]) for i in rows],
-                           dtype=np.intp).reshape(len(rows), size + 2)
-            if self._corr is not None:
-                r = _partial_correlations(self._corr, idx)
-                n_eff = np.full(len(rows), self.n - size - 3, dtype=float)
-            else:
-                r, n_eff = self._testwise(idx)
-            z, p = _z_and_p(r, n_eff)
-            stat[rows] = z
-            pval[rows] = p
-        if np.isnan(pval).any():
-            warnings.warn(f"{int(np.isnan(pval).sum())} Fisher's z test(s) had too few rows "
-                          "to compute; their p-values are NaN", DegenerateDataWarning,
-                          stacklevel=3)
-        return stat, pval
+    def _batch_array(self, idx):
+        size = idx.shape[1] - 2
+        if self._corr is not None:
+            r = _partial_correlations(self._corr, idx)
+            n_eff = np.full(len(idx), self.n - size - 3, dtype=float)
+        else:
+            r, n_eff = self._testwise(idx)
+        z, p = _z_and_p(r, n_eff)
+        if np.isnan(p).any():
+            warnings.warn(f"{int(np.isnan(p).sum())} Fisher's z test(s) could not be computed "
+                          "(too few complete rows, or a constant column); their p-values are "
+                          "NaN", DegenerateDataWarning, stacklevel=3)
+        return z, p
 
     def _testwise(self, idx):
         r = np.full(len(idx), np.nan)

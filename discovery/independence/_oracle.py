@@ -48,7 +48,7 @@ class DSeparationOracle(IndependenceTest):
             raise DataValidationError(
                 f"the oracle's diagram has a cycle {nx.find_cycle(dag)}; give an acyclic graph")
         self.dag = nx.relabel_nodes(dag, {v: str(v) for v in dag.nodes}, copy=True)
-        self.variables = tuple(str(v) for v in dag.nodes)
+        self.variables = tuple(sorted(str(v) for v in dag.nodes))
         self.n = None
         edges = tuple(sorted(self.dag.edges))
         self._key = ("d-separation", tuple(sorted(self.variables)), edges)

@@ -18,7 +18,8 @@ import numpy as np
 
 from ..exceptions import DataValidationError, KnowledgeError, SettingsError
 from ..independence import IndependenceTest, PValueCache, make_test
-from ..result import Edge, Removal, SearchResult
+from ..independence._base import canonical_triple
+from ..result import Edge, Removal, SearchResult, TestLog
 from ..settings import SearchSettings, check_parameter
 from ..knowledge import Knowledge
 from ._orientation import orient
@@ -92,7 +93,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     >>> [e.arrow() for e in result.edges]
     ['rain → wet', 'sprinkler → wet', 'wet → slippery']
     """
-    started = time.perf_counter()
+    started = t_data = time.perf_counter()
     knowledge = knowledge if knowledge is not None else Knowledge()
     if not isinstance(knowledge, Knowledge):
         raise KnowledgeError("knowledge must be a discovery.Knowledge (read files with "
@@ -115,10 +116,24 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
                                       "object such as DSeparationOracle")
         dataset = _as_dataset(data, columns=columns, missing=missing)
-        from ..data import check_for_search
-        check_for_search(dataset, test=test_name, max_depth=max_depth)
-        test_obj = make_test(test_name, dataset.frame, missing=dataset.missing,
-                             **(test_options or {}))
+        from ..data import check_collinearity, check_for_search
+        check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
+        frame = dataset.frame[sorted(dataset.frame.columns)]
+        t_data = time.perf_counter()
+        test_obj = make_test(test_name, frame, missing=dataset.missing, **(test_options or {}))
+        if test_name == "fisher-z":
+            # reuse the test's correlation matrix for the collinearity check (one matrix)
+            corr = getattr(test_obj, "_corr", None)
+            if corr is not None:
+                at = {v: i for i, v in enumerate(frame.columns)}
+                order = [at[v] for v in dataset.variables]
+                corr = corr[np.ix_(order, order)]
+            check_collinearity(dataset, correlation=corr)
+    display = tuple(dataset.variables) if dataset is not None else tuple(test_obj.variables)
+    if list(test_obj.variables) != sorted(test_obj.variables):
+        test_obj = NameOrderedTest(test_obj)
+    # From here on, variable indices follow the order of the names: enumeration and every
+    # choice the search makes are then independent of the data's column order.
     names = tuple(test_obj.variables)
     knowledge.check_variables(names)
     index = {v: i for i, v in enumerate(names)}
@@ -133,27 +148,27 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     cache = cache if cache is not None else PValueCache()
     cancelled = _cancel_check(cancel)
 
-    def pvalues(batch):
-        return cache.pvalues(test_obj, batch, executor=executor)
+    def pvalues(idx):
+        return cache.pvalues_array(test_obj, idx, executor=executor)
 
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
     t0 = time.perf_counter()
-    skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, names=names,
-                                max_depth=depth, locked=locked, forbidden=forbidden,
+    skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth, locked=locked, forbidden=forbidden,
                                 progress=progress, cancelled=cancelled)
     t1 = time.perf_counter()
-    rank = np.empty(len(names), dtype=np.intp)
-    rank[np.argsort(np.asarray(names, dtype=object), kind="stable")] = np.arange(len(names))
+    rank = np.arange(len(names))
 
     def why_forbidden(a, b):
         return knowledge.is_direction_forbidden(names[a], names[b])
 
     separating_sets_of = None
     if settings.collider_rule != "standard":
-        separating_sets_of = _separating_sets_finder(skeleton.adjacent, pvalues,
-                                                     settings.alpha, depth, cancelled)
+        separating_sets_of = _separating_sets_finder(
+            skeleton.adjacent,
+            lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
+            settings.alpha, depth, cancelled)
     orientation = orient(
         skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
         collider_rule=settings.collider_rule,
@@ -168,9 +183,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     if skeleton.unseparated_forbidden:
         notes.append(f"{len(skeleton.unseparated_forbidden)} forbidden pair(s) had no "
                      "separating set in the data; triples through them were left undecided")
-    return _build_result(names, rank, settings, knowledge, skeleton, orientation, notes,
+    return _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes,
                          dataset, test_obj, cache, hits0, misses0,
-                         timings={"skeleton_s": t1 - t0, "orientation_s": t2 - t1,
+                         timings={"data_s": t_data - started,
+                                  "test_setup_s": t0 - t_data,
+                                  "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
                                   "total_s": time.perf_counter() - started})
 
 
@@ -235,23 +252,23 @@ def _software() -> dict:
             "pandas": pandas.__version__, "networkx": networkx.__version__}
 
 
-def _build_result(names, rank, settings, knowledge, skeleton, orientation, notes, dataset,
+def _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes, dataset,
                   test_obj, cache, hits0, misses0, timings) -> SearchResult:
     key = rank.__getitem__
+    index = {v: i for i, v in enumerate(names)}
 
-    def ordered(a, b):
-        return (a, b) if key(a) < key(b) else (b, a)
-
-    def sorted_names(s):
-        return tuple(names[v] for v in sorted(s, key=key))
-
-    by_pair: dict[tuple[int, int], list[float]] = {}
-    tests = []
-    for x, y, s, p in skeleton.log:
-        a, b = ordered(x, y)
-        by_pair.setdefault((a, b), []).append(p)
-        tests.append((names[a], names[b], sorted_names(s), p))
-    tests.sort(key=lambda t: (t[0], t[1], len(t[2]), t[2]))
+    # Indices follow name order, so the log's order (level by level, pair by pair) is already
+    # independent of column order and needs no sorting.
+    tests = TestLog.from_blocks(names, skeleton.log)
+    pair_key = np.concatenate([b[0][:, 0] * len(names) + b[0][:, 1] for b in skeleton.log]) \
+        if skeleton.log else np.empty(0, dtype=np.intp)
+    log_p = np.concatenate([b[1] for b in skeleton.log]) if skeleton.log else np.empty(0)
+    keys, ids = np.unique(pair_key, return_inverse=True)
+    pair_id = {int(k): i for i, k in enumerate(keys)}
+    n_tests = np.bincount(ids, minlength=len(keys))
+    max_p = np.full(len(keys), -np.inf)
+    finite = ~np.isnan(log_p)
+    np.maximum.at(max_p, ids[finite], log_p[finite])
     locked_pairs = knowledge.required_adjacent()
     heads = orientation.heads
     edges = []
@@ -259,9 +276,10 @@ def _build_result(names, rank, settings, knowledge, skeleton, orientation, notes
         for y in skeleton.adjacent[x]:
             if key(y) < key(x):
                 continue
-            ps = [p for p in by_pair.get((x, y), []) if p == p]
-            stats = dict(max_pvalue=max(ps) if ps else float("nan"),
-                         tests=len(by_pair.get((x, y), [])),
+            k = pair_id.get(x * len(names) + y)
+            mp = -np.inf if k is None else max_p[k]
+            stats = dict(max_pvalue=float(mp) if np.isfinite(mp) else float("nan"),
+                         tests=0 if k is None else int(n_tests[k]),
                          locked=frozenset((names[x], names[y])) in locked_pairs)
             hx, hy = (y, x) in heads, (x, y) in heads
             if hx and hy:
@@ -275,16 +293,17 @@ def _build_result(names, rank, settings, knowledge, skeleton, orientation, notes
             else:
                 edges.append(Edge(names[x], names[y], "undirected", "", "", **stats))
     edges.sort(key=lambda e: (e.source, e.target))
-    forbidden = knowledge.forbidden_adjacent()
+    forbidden_idx = {(min(index[a], index[b]), max(index[a], index[b]))
+                     for a, b in knowledge.forbidden}
     removed = []
-    for (x, y), (s, p) in skeleton.sepsets.items():
-        a, b = ordered(x, y)
-        by = "knowledge" if frozenset((names[a], names[b])) in forbidden else "test"
-        removed.append(Removal(names[a], names[b], sorted_names(s), p, by))
+    get = names.__getitem__
+    for (x, y), (s, p) in sorted(skeleton.sepsets.items()):
+        removed.append(Removal(names[x], names[y], tuple(map(get, s)), p,
+                               "knowledge" if (x, y) in forbidden_idx else "test"))
     for x, y in skeleton.unseparated_forbidden:
-        a, b = ordered(x, y)
-        removed.append(Removal(names[a], names[b], None, float("nan"), "knowledge"))
-    removed.sort(key=lambda r: (r.a, r.b))
+        removed.append(Removal(names[x], names[y], None, float("nan"), "knowledge"))
+    if skeleton.unseparated_forbidden:  # otherwise already in name order (index order)
+        removed.sort(key=lambda r: (r.a, r.b))
     kinds = [e.kind for e in edges]
     counts = {"edges": len(edges), "directed": kinds.count("directed"),
               "undirected": kinds.count("undirected"), "contested": kinds.count("contested"),
@@ -298,9 +317,39 @@ def _build_result(names, rank, settings, knowledge, skeleton, orientation, notes
                     excluded=dict(dataset.excluded))
         notes = list(dataset.notes) + notes
     return SearchResult(
-        variables=names, settings=settings, knowledge=knowledge, edges=tuple(edges),
-        removed=tuple(removed), tests=tuple(tests),
+        variables=display, settings=settings, knowledge=knowledge, edges=tuple(edges),
+        removed=tuple(removed), tests=tests,
         triples=tuple(sorted(orientation.triples, key=lambda t: (t["z"], t["x"], t["y"]))),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
         software=_software(), seed=getattr(test_obj, "seed", None))
+
+
+class NameOrderedTest(IndependenceTest):
+    """A view of a test with its variables in the order of their names.
+
+    The search addresses variables in name order; a test object built with another column
+    order is wrapped so that its answers, and the cache, follow that order.
+    """
+
+    def __init__(self, inner: IndependenceTest):
+        self.inner = inner
+        self.name = inner.name
+        self.n = inner.n
+        self.vectorised = inner.vectorised
+        order = sorted(range(len(inner.variables)), key=lambda i: inner.variables[i])
+        self.variables = tuple(inner.variables[i] for i in order)
+        self._to_inner = order
+        self.seed = getattr(inner, "seed", None)
+
+    def settings_key(self) -> tuple:
+        return ("name-ordered",) + tuple(self.inner.settings_key())
+
+    def association(self):
+        inner = self.inner.association()
+        return None if inner is None else inner[np.ix_(self._to_inner, self._to_inner)]
+
+    def _batch(self, triples):
+        m = self._to_inner
+        return self.inner._batch([canonical_triple(m[x], m[y], [m[s] for s in S])
+                                  for x, y, S in triples])
