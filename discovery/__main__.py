@@ -1,0 +1,7 @@
+"""``python -m discovery`` runs the ``edgewise`` command."""
+
+import sys
+
+from .cli import main
+
+sys.exit(main())

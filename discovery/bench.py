@@ -1,0 +1,185 @@
+"""Benchmarks of the search, reported as ratios measured in one run.
+
+Shared machines are noisy, so speed is never asserted in unit tests. ``edgewise bench``
+measures, on a linear-Gaussian random DAG (Kalisch & Bühlmann 2007 design): the whole search's
+time divided by the time numpy takes for the correlation matrix of the same data (both best of
+several runs, interleaved), tests per second, peak memory (tracemalloc, in a separate run), and
+that a 1,000-variable search finishes. Benchmarks of the other independence tests and of the
+window live beside the tests (``tests/benchmarks``) and are run too when found.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import os
+import platform
+import re
+import time
+import tracemalloc
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["run_benchmarks", "search_benchmarks", "machine_description"]
+
+SECTION = "## Search"
+
+
+def machine_description() -> str:
+    """One paragraph naming the CPU, cores, memory, Python and numpy's BLAS."""
+    cpu = platform.processor() or platform.machine()
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    mem = ""
+    try:
+        kb = int(re.search(r"MemTotal:\s+(\d+)", Path("/proc/meminfo").read_text()).group(1))
+        mem = f", {kb / 2**20:.0f} GiB memory"
+    except (OSError, AttributeError):
+        pass
+    blas = ""
+    try:
+        cfg = np.show_config(mode="dicts")
+        blas = ", BLAS " + cfg["Build Dependencies"]["blas"]["name"]
+    except Exception:  # older numpy has no dict mode
+        pass
+    return (f"{cpu}, {os.cpu_count()} cores{mem}; Python {platform.python_version()}, "
+            f"numpy {np.__version__}{blas}; {platform.system()} {platform.release()}")
+
+
+def _best(fn, repeat):
+    best = float("inf")
+    out = None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
+def search_benchmarks(*, quick: bool = False, progress=print) -> dict:
+    """Run the search benchmarks; returns the figures as a dict."""
+    from .independence import FisherZ
+    from .search import discover
+    from .simulate import random_dag, sample_linear_gaussian
+
+    p, deg, n = (60, 3, 1000) if quick else (300, 3, 5000)
+    big_p, big_deg = (200, 2) if quick else (1000, 2)
+    rng = np.random.default_rng(20261202)
+    dag = random_dag(p, expected_degree=deg, rng=rng)
+    frame = sample_linear_gaussian(dag, n, rng=rng)
+    values = frame.to_numpy()
+    progress(f"search benchmark: {p} variables, expected degree {deg}, {n} rows")
+
+    def corr():
+        return np.corrcoef(values, rowvar=False)
+
+    def search():
+        return discover(frame, test="fisher-z", alpha=0.05)
+
+    # interleave the two so that both see the same machine load
+    corr_times, search_times, result = [], [], None
+    for _ in range(3):
+        corr_times.append(_best(corr, 3)[0])
+        t, result = _best(search, 1)
+        search_times.append(t)
+    t_corr, t_search = min(corr_times), min(search_times)
+    tests = result.counts["tests"]
+    tracemalloc.start()
+    discover(frame, test="fisher-z", alpha=0.05)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    from .metrics import skeleton_scores
+    f1 = skeleton_scores(result.to_networkx(), dag).f1
+
+    progress(f"scale check: {big_p} variables, expected degree {big_deg}, {n} rows")
+    big_dag = random_dag(big_p, expected_degree=big_deg, rng=rng)
+    big = sample_linear_gaussian(big_dag, n, rng=rng)
+    t_big, big_result = _best(lambda: discover(big, test="fisher-z", alpha=0.05), 1)
+    return {
+        "variables": p, "degree": deg, "rows": n,
+        "corr_s": t_corr, "search_s": t_search, "ratio": t_search / t_corr,
+        "tests": tests, "tests_per_s": tests / t_search, "peak_mib": peak / 2**20,
+        "skeleton_f1": f1, "edges": result.counts["edges"],
+        "true_edges": dag.number_of_edges(),
+        "big_variables": big_p, "big_degree": big_deg, "big_s": t_big,
+        "big_tests": big_result.counts["tests"],
+        "big_f1": skeleton_scores(big_result.to_networkx(), big_dag).f1,
+    }
+
+
+def format_search(fig: dict) -> str:
+    return "\n".join([
+        SECTION, "",
+        f"Linear-Gaussian random DAG, {fig['variables']} variables, expected degree "
+        f"{fig['degree']}, {fig['rows']:,} rows; Fisher's z, α = 0.05, no depth limit. "
+        "Times are the best of three runs, the search and numpy's correlation matrix "
+        "interleaved so both see the same load.", "",
+        "| figure | value |", "| --- | --- |",
+        f"| numpy correlation matrix (`np.corrcoef`) | {fig['corr_s'] * 1e3:.1f} ms |",
+        f"| whole search (`discover`) | {fig['search_s'] * 1e3:.0f} ms |",
+        f"| **search ÷ correlation matrix** | **{fig['ratio']:.1f}** (issue target ≤ 10, "
+        "goal ≤ 5) |",
+        f"| tests run | {fig['tests']:,} |",
+        f"| tests per second | {fig['tests_per_s']:,.0f} |",
+        f"| peak traced memory (tracemalloc) | {fig['peak_mib']:.0f} MiB |",
+        f"| skeleton F1 against the true DAG | {fig['skeleton_f1']:.3f} "
+        f"({fig['edges']} edges found, {fig['true_edges']} true) |",
+        f"| {fig['big_variables']:,} variables, expected degree {fig['big_degree']}: time | "
+        f"{fig['big_s']:.1f} s ({fig['big_tests']:,} tests, skeleton F1 "
+        f"{fig['big_f1']:.3f}) |",
+        "",
+    ])
+
+
+def _extra_benchmarks(quick: bool) -> list[str]:
+    """Run tests/benchmarks/bench_*.py of a source checkout, when present."""
+    root = Path(__file__).resolve().parent.parent / "tests" / "benchmarks"
+    sections = []
+    for name, func in (("bench_tests.py", "main"), ("bench_gui.py", "gui_benchmarks")):
+        path = root / name
+        if not path.exists():
+            continue
+        spec = importlib.util.spec_from_file_location(f"_edgewise_{path.stem}", path)
+        module = importlib.util.module_from_spec(spec)
+        spec.loader.exec_module(module)
+        fn = getattr(module, func, None)
+        if fn is None:
+            continue
+        try:
+            figures = fn(["--quick"] if quick and func == "main" else []) if func == "main" \
+                else fn()
+        except Exception as err:  # a broken extra benchmark must not hide the search figures
+            sections.append(f"<!-- {name} failed: {type(err).__name__}: {err} -->")
+            continue
+        sections.append(f"{name}: " + ", ".join(f"{k} = {v:.4g}" if isinstance(v, float)
+                                               else f"{k} = {v}" for k, v in figures.items()))
+    return sections
+
+
+def run_benchmarks(*, quick: bool = False, write: str | None = None) -> str:
+    """Run every benchmark; return a Markdown report (and update ``write`` when given)."""
+    import sys
+    fig = search_benchmarks(quick=quick, progress=lambda m: print(m, file=sys.stderr))
+    machine = machine_description()
+    section = format_search(fig) + f"\nMachine: {machine}. Measured {time.strftime('%Y-%m-%d')}" \
+        + (" (quick sizes)" if quick else "") + ".\n"
+    if write:
+        _replace_section(Path(write), section)
+    extras = _extra_benchmarks(quick)
+    return section + ("\n" + "\n".join(extras) if extras else "")
+
+
+def _replace_section(path: Path, section: str) -> None:
+    """Replace the '## Search' section of a Markdown file (or append it)."""
+    text = path.read_text(encoding="utf-8") if path.exists() else "# Benchmarks\n\n"
+    pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
+    if pattern.search(text):
+        text = pattern.sub(lambda m: section + "\n", text, count=1)
+    else:
+        text = text.rstrip("\n") + "\n\n" + section
+    path.write_text(text, encoding="utf-8")

@@ -1,0 +1,292 @@
+"""The ``edgewise`` command: discover, simulate, bench, gui.
+
+Every command has ``--help`` with an example. Errors are one line on stderr and a non-zero exit
+(2 for bad input, 1 for anything unexpected), never a traceback; input files are never
+modified. Long work shows progress on stderr.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+import warnings
+from pathlib import Path
+
+from .exceptions import DiscoveryError
+
+__all__ = ["main"]
+
+CAUTION = ("Caution: these are hypotheses, sound only without hidden common causes or feedback "
+           "loops, under faithfulness, i.i.d. rows and a fitting test; weigh them with study "
+           "design and expert judgement (see the README).")
+
+
+class CommandError(DiscoveryError):
+    """A command-line problem (bad option value, unwritable output)."""
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    from .independence import TEST_NAMES
+    from .settings import COLLIDER_RULES, MISSING_POLICIES
+
+    parser = argparse.ArgumentParser(
+        prog="edgewise",
+        description="Edgewise: search a table of measurements for the equivalence class of "
+                    "causal diagrams that fits its independence pattern.",
+        epilog="Run 'edgewise COMMAND --help' for each command's options and an example.")
+    parser.add_argument("--version", action="version", version=f"edgewise {_version()}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    d = sub.add_parser(
+        "discover", help="search a data file for its causal equivalence class",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Search DATA (CSV, TSV or Parquet) for the equivalence class of causal "
+                    "diagrams that fits its conditional independences.",
+        epilog="example:\n  edgewise discover example_sets/greenhouse/data.csv \\\n"
+               "      --knowledge example_sets/greenhouse/knowledge.toml \\\n"
+               "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png")
+    d.add_argument("data", help="CSV, TSV or Parquet file, one column per variable")
+    d.add_argument("--test", default="fisher-z", choices=sorted(TEST_NAMES),
+                   help="independence test (default: fisher-z)")
+    d.add_argument("--alpha", type=float, default=0.05,
+                   help="significance level in (0, 1); a pair is independent when p > alpha "
+                        "(default: 0.05)")
+    d.add_argument("--max-depth", type=int, default=None, metavar="N",
+                   help="largest conditioning-set size (default: no limit)")
+    d.add_argument("--knowledge", metavar="FILE",
+                   help="knowledge file (TOML or JSON): locked/forbidden edges and "
+                        "directions, stages")
+    d.add_argument("--collider-rule", default="standard", choices=COLLIDER_RULES,
+                   help="how unshielded triples are judged colliders (default: standard)")
+    d.add_argument("--missing", default="drop", choices=MISSING_POLICIES,
+                   help="drop rows with any missing value, or delete test-wise "
+                        "(default: drop)")
+    d.add_argument("--columns", metavar="A,B,...",
+                   help="comma-separated columns to include (default: all usable)")
+    d.add_argument("--jobs", type=int, default=1, metavar="N",
+                   help="worker processes for tests that are not vectorised (default: 1)")
+    d.add_argument("--out", metavar="FILE.json", help="write the result JSON here")
+    d.add_argument("--dot", metavar="FILE.dot", help="write the diagram as Graphviz DOT")
+    d.add_argument("--graphml", metavar="FILE.graphml", help="write the diagram as GraphML")
+    d.add_argument("--figure", metavar="FILE",
+                   help="draw the diagram to a PNG, SVG or PDF file")
+    d.add_argument("--quiet", action="store_true", help="no summary on stdout")
+
+    s = sub.add_parser(
+        "simulate", help="write linear-Gaussian data from a random or given diagram",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Write linear-Gaussian data from a random DAG, or from a diagram given as "
+                    "an edge list (CSV with columns from,to) or GraphML.",
+        epilog="example:\n  edgewise simulate --nodes 15 --degree 2 --rows 2000 --seed 1 \\\n"
+               "      --out out/sim.csv --truth out/sim-truth.csv")
+    s.add_argument("--diagram", metavar="FILE",
+                   help="edge list CSV (from,to) or GraphML of the true diagram")
+    s.add_argument("--nodes", type=int, default=10, help="variables of a random DAG "
+                                                          "(default: 10)")
+    s.add_argument("--degree", type=float, default=2.0,
+                   help="expected degree of a random DAG (default: 2)")
+    s.add_argument("--rows", type=int, default=1000, help="rows to draw (default: 1000)")
+    s.add_argument("--seed", type=int, default=None, help="random seed (default: fresh)")
+    s.add_argument("--out", required=True, metavar="FILE.csv", help="data file to write")
+    s.add_argument("--truth", metavar="FILE.csv", help="write the true edges (from,to) here")
+
+    b = sub.add_parser(
+        "bench", help="measure the search's speed and memory on simulated data",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Benchmarks of the search (and, when present, of the other independence "
+                    "tests and the window). Prints a Markdown table.",
+        epilog="example:\n  edgewise bench --quick\n  edgewise bench --write docs/benchmarks.md")
+    b.add_argument("--quick", action="store_true", help="small sizes, for a smoke run")
+    b.add_argument("--write", metavar="FILE.md",
+                   help="replace the search section of this Markdown file with the figures")
+
+    g = sub.add_parser(
+        "gui", help="open the desktop window",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Open the Edgewise window, optionally with a data file or a saved "
+                    ".edgewise session.",
+        epilog="example:\n  edgewise gui example_sets/greenhouse/data.csv")
+    g.add_argument("path", nargs="?", help="data file or .edgewise session to open")
+    return parser
+
+
+def _version() -> str:
+    from . import __version__
+    return __version__
+
+
+def main(argv=None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = _build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    handler = {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
+               "gui": _cmd_gui}[args.command]
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # notes reach the user through the result
+            return handler(args)
+    except DiscoveryError as err:
+        print(f"edgewise {args.command}: error: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"edgewise {args.command}: stopped", file=sys.stderr)
+        return 130
+    except Exception as err:  # the one place that turns a bug into one line, not a traceback
+        print(f"edgewise {args.command}: unexpected error ({type(err).__name__}: {err}); "
+              "please report it with the command you ran", file=sys.stderr)
+        return 1
+
+
+class _Progress:
+    """Progress on stderr, shown only once a run has taken more than a moment."""
+
+    def __init__(self, delay: float = 0.7):
+        self.started = time.perf_counter()
+        self.delay = delay
+        self.shown = False
+
+    def __call__(self, event: dict):
+        elapsed = time.perf_counter() - self.started
+        if elapsed < self.delay:
+            return
+        self.shown = True
+        print(f"\r{event['phase']} level {event['level']}: {event['done']:,} of "
+              f"{event['planned']:,} tests, {elapsed:.1f} s   ", end="", file=sys.stderr,
+              flush=True)
+
+    def close(self):
+        if self.shown:
+            print(file=sys.stderr)
+
+
+def _output_path(value: str | None, option: str, suffixes=None) -> Path | None:
+    if value is None:
+        return None
+    path = Path(value)
+    if suffixes and path.suffix.lower() not in suffixes:
+        raise CommandError(f"{option} {value}: the file name must end in "
+                           f"{' or '.join(suffixes)}")
+    if path.is_dir():
+        raise CommandError(f"{option} {value}: is a folder; give a file name")
+    return path
+
+
+def _write(path: Path, option: str, writer) -> None:
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        writer(path)
+    except OSError as err:
+        raise CommandError(f"{option} {path}: cannot write ({err.strerror or err}); "
+                           "choose another path") from None
+
+
+def _cmd_discover(args) -> int:
+    from .data import read_table
+    from .executor import make_executor
+    from .knowledge import read_knowledge
+    from .search import discover
+
+    outputs = {
+        "--out": _output_path(args.out, "--out", [".json"]),
+        "--dot": _output_path(args.dot, "--dot", [".dot", ".gv"]),
+        "--graphml": _output_path(args.graphml, "--graphml", [".graphml"]),
+        "--figure": _output_path(args.figure, "--figure", [".png", ".svg", ".pdf"]),
+    }
+    inputs = {Path(args.data).resolve()}
+    if args.knowledge:
+        inputs.add(Path(args.knowledge).resolve())
+    for option, path in outputs.items():
+        if path is not None and path.resolve() in inputs:
+            raise CommandError(f"{option} {path}: would overwrite an input file; choose "
+                               "another path")
+    columns = [c.strip() for c in args.columns.split(",") if c.strip()] if args.columns \
+        else None
+    dataset = read_table(args.data, columns=columns, missing=args.missing)
+    knowledge = read_knowledge(args.knowledge) if args.knowledge else None
+    progress = _Progress()
+    with make_executor(args.jobs) as executor:
+        try:
+            result = discover(dataset, test=args.test, alpha=args.alpha,
+                              max_depth=args.max_depth, knowledge=knowledge,
+                              collider_rule=args.collider_rule, executor=executor,
+                              progress=progress)
+        finally:
+            progress.close()
+    if outputs["--out"]:
+        _write(outputs["--out"], "--out", result.to_json)
+    if outputs["--dot"] or outputs["--graphml"]:
+        from .io import write_dot, write_graphml
+        if outputs["--dot"]:
+            _write(outputs["--dot"], "--dot", lambda p: write_dot(result, p))
+        if outputs["--graphml"]:
+            _write(outputs["--graphml"], "--graphml", lambda p: write_graphml(result, p))
+    if outputs["--figure"]:
+        from .drawing import draw_result
+        _write(outputs["--figure"], "--figure", lambda p: draw_result(result, p))
+    if not args.quiet:
+        print(result.summary().as_text(assumptions=False))
+        written = [f"{opt} {p}" for opt, p in outputs.items() if p is not None]
+        if written:
+            print("\nWrote: " + ", ".join(str(p) for p in outputs.values() if p is not None))
+        print("\n" + CAUTION)
+    return 0
+
+
+def _cmd_simulate(args) -> int:
+    import numpy as np
+
+    from .simulate import random_dag, sample_linear_gaussian
+
+    out = _output_path(args.out, "--out", [".csv"])
+    truth_path = _output_path(args.truth, "--truth", [".csv"])
+    if args.rows < 1:
+        raise CommandError(f"--rows {args.rows}: must be at least 1")
+    rng = np.random.default_rng(args.seed)
+    if args.diagram:
+        from .io import read_edge_list, read_graphml_dag
+        reader = read_graphml_dag if args.diagram.lower().endswith(".graphml") \
+            else read_edge_list
+        dag = reader(args.diagram)
+    else:
+        if args.nodes < 2:
+            raise CommandError(f"--nodes {args.nodes}: must be at least 2")
+        if not 0 <= args.degree <= args.nodes - 1:
+            raise CommandError(f"--degree {args.degree}: must be between 0 and nodes - 1 "
+                               f"({args.nodes - 1})")
+        dag = random_dag(args.nodes, expected_degree=args.degree, rng=rng)
+    frame = sample_linear_gaussian(dag, args.rows, rng=rng)
+    _write(out, "--out", lambda p: frame.to_csv(p, index=False))
+    if truth_path:
+        import pandas as pd
+        edges = pd.DataFrame(sorted(dag.edges), columns=["from", "to"])
+        _write(truth_path, "--truth", lambda p: edges.to_csv(p, index=False))
+    print(f"Wrote {args.rows} rows of {dag.number_of_nodes()} variables "
+          f"({dag.number_of_edges()} true edges) to {out}"
+          + (f"; true edges to {truth_path}" if truth_path else ""))
+    return 0
+
+
+def _cmd_bench(args) -> int:
+    from .bench import run_benchmarks
+    report = run_benchmarks(quick=args.quick, write=args.write)
+    print(report)
+    return 0
+
+
+def _cmd_gui(args) -> int:
+    if args.path is not None and not Path(args.path).exists():
+        raise CommandError(f"{args.path}: file not found; check the path")
+    try:
+        from gui.app import main as gui_main
+    except ImportError as err:
+        raise CommandError(f"the window cannot start: {err}; reinstall Edgewise with its "
+                           "dependencies (pip install edgewise)") from None
+    return gui_main(args.path)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
