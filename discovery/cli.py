@@ -8,6 +8,7 @@ modified. Long work shows progress on stderr.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 import warnings
@@ -135,6 +136,12 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print(f"edgewise {args.command}: stopped", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader (e.g. `| head`) went away: not an error of ours
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except Exception as err:  # the one place that turns a bug into one line, not a traceback
         print(f"edgewise {args.command}: unexpected error ({type(err).__name__}: {err}); "
               "please report it with the command you ran", file=sys.stderr)

@@ -113,7 +113,12 @@ class SearchSettings:
     missing: str = "drop"
 
     def __post_init__(self):
-        for name in ("test", "alpha", "max_depth", "collider_rule", "missing"):
+        # Test names are checked against the registry where a name is turned into a test;
+        # here any test object's name is accepted (custom tests have their own).
+        if not isinstance(self.test, str) or not self.test:
+            raise SettingsError(f"The 'test' parameter must be a test name. Got "
+                                f"{self.test!r} instead.")
+        for name in ("alpha", "max_depth", "collider_rule", "missing"):
             check_parameter(name, getattr(self, name))
         object.__setattr__(self, "alpha", float(self.alpha))
         if self.max_depth is not None:

@@ -1,0 +1,181 @@
+"""The search on data: finite-sample recovery, column order, determinism, the result record."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+import pytest
+
+from discovery import (DataValidationError, DSeparationOracle, ResultFormatError,
+                       SearchCancelled, SearchResult, SettingsError, discover, load_result)
+from discovery.metrics import cpdag_of, skeleton_scores
+from discovery.simulate import random_dag, sample_linear_gaussian
+
+HERE = Path(__file__).parent
+
+
+@pytest.fixture(scope="module")
+def sim15():
+    rng = np.random.default_rng(42)
+    dag = random_dag(15, expected_degree=2, rng=rng)
+    return dag, sample_linear_gaussian(dag, 2000, rng=rng)
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_finite_sample_skeleton_f1(seed):
+    # Invented linear-Gaussian data, 15 variables, expected degree 2, n = 2,000 (the design of
+    # Kalisch & Bühlmann 2007): the skeleton must be recovered with F1 ≥ 0.9.
+    rng = np.random.default_rng(seed)
+    dag = random_dag(15, expected_degree=2, rng=rng)
+    frame = sample_linear_gaussian(dag, 2000, rng=rng)
+    result = discover(frame, alpha=0.05)
+    assert skeleton_scores(result.to_networkx(), dag).f1 >= 0.9
+
+
+def test_alarm_network_with_the_oracle_returns_its_cpdag():
+    # ALARM (Beinlich et al. 1989), 37 variables and 46 edges: with a d-separation oracle
+    # (networkx) the search must return the CPDAG, here computed by Chickering's (1995)
+    # labelling in discovery.metrics.cpdag_of, an algorithm independent of the search's rules.
+    edges = pd.read_csv(HERE / "data" / "alarm_edges.csv")
+    dag = nx.DiGraph(list(zip(edges["from"], edges["to"])))
+    assert dag.number_of_nodes() == 37 and dag.number_of_edges() == 46
+    result = discover(None, test=DSeparationOracle(dag))
+    assert set(result.to_networkx().edges) == set(cpdag_of(dag).edges)
+
+
+@pytest.mark.parametrize("rule", ["standard", "conservative", "majority"])
+def test_column_order_does_not_change_the_result(sim15, rule):
+    _, frame = sim15
+    a = discover(frame, collider_rule=rule)
+    shuffled = frame[list(np.random.default_rng(9).permutation(frame.columns))]
+    b = discover(shuffled, collider_rule=rule)
+    assert a.edges == b.edges
+    assert a.removed == b.removed
+    assert a.tests == b.tests
+    assert a.triples == b.triples
+
+
+def test_same_input_gives_identical_edges_and_evidence(sim15):
+    _, frame = sim15
+    a, b = discover(frame), discover(frame)
+    assert a.edges == b.edges and a.tests == b.tests and a.removed == b.removed
+
+
+def test_result_json_round_trip(tmp_path, sim15):
+    _, frame = sim15
+    result = discover(frame, max_depth=2)
+    path = tmp_path / "r.json"
+    result.to_json(path)
+    doc = json.loads(path.read_text())
+    assert doc["format"] == "edgewise-result" and doc["version"] == 1
+    for key in ("variables", "settings", "knowledge", "edges", "removed", "counts", "timings",
+                "data", "software", "assumptions"):
+        assert key in doc
+    assert len(doc["data"]["sha256"]) == 64
+    loaded = load_result(path)
+    assert loaded.edges == result.edges
+    assert loaded.removed == result.removed
+    assert loaded.tests == result.tests
+    assert loaded.settings == result.settings
+
+
+@pytest.mark.parametrize("mutate, message", [
+    (lambda d: d.update(format="other"), "'format' is not 'edgewise-result'"),
+    (lambda d: d.update(version=99), "version 99 is not supported"),
+    (lambda d: d.pop("edges"), r"missing field\(s\) \['edges'\]"),
+    (lambda d: d["edges"][0].update(kind="sideways"), "edge kind 'sideways'"),
+    (lambda d: d["edges"][0].update({"from": "ghost"}), "unknown variable"),
+    (lambda d: d["settings"].update(alpha=3), "'alpha' parameter"),
+])
+def test_result_validation_on_load(tmp_path, sim15, mutate, message):
+    _, frame = sim15
+    doc = discover(frame, max_depth=1).to_dict()
+    mutate(doc)
+    path = tmp_path / "bad.json"
+    path.write_text(json.dumps(doc))
+    with pytest.raises(ResultFormatError, match=message):
+        load_result(path)
+
+
+def test_result_is_immutable(sim15):
+    _, frame = sim15
+    result = discover(frame, max_depth=1)
+    with pytest.raises(AttributeError):
+        result.edges = ()
+    with pytest.raises(TypeError):
+        result.counts["edges"] = 0
+
+
+def test_every_pair_has_evidence(sim15):
+    dag, frame = sim15
+    result = discover(frame)
+    names = list(frame.columns)
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            ev = result.evidence(a, b)
+            assert ev.tests, f"no test recorded for {a}, {b}"
+            assert (ev.edge is None) == (ev.removal is not None)
+    for e in result.edges:
+        if e.kind == "directed":
+            assert e.reason and e.reason_kind
+    assert "Assumptions" in result.summary().as_text()
+
+
+@pytest.mark.parametrize("kwargs, message", [
+    ({"alpha": 1.5}, r"The 'alpha' parameter of discover must be a float in \(0, 1\). Got 1.5"),
+    ({"alpha": 0}, "'alpha' parameter"),
+    ({"max_depth": -1}, "'max_depth' parameter"),
+    ({"collider_rule": "loose"}, "'collider_rule' parameter"),
+    ({"test": "psychic"}, "'test' parameter"),
+    ({"missing": "ignore"}, "'missing' parameter"),
+])
+def test_settings_are_validated(sim15, kwargs, message):
+    _, frame = sim15
+    with pytest.raises(SettingsError, match=message):
+        discover(frame, **kwargs)
+
+
+def test_text_column_is_a_clear_error():
+    frame = pd.DataFrame({"a": [1.0, 2, 3, 4, 5, 6], "b": list("xyzxyz"),
+                          "c": [2.0, 1, 4, 3, 6, 5]})
+    with pytest.raises(DataValidationError, match="column 'b' holds text"):
+        discover(frame)
+
+
+def test_collinear_columns_are_named():
+    rng = np.random.default_rng(0)
+    a, b = rng.normal(size=(2, 100))
+    frame = pd.DataFrame({"a": a, "b": b, "c": a - b, "d": rng.normal(size=100)})
+    with pytest.raises(DataValidationError, match="'a', 'b' and 'c' are perfectly collinear"):
+        discover(frame)
+
+
+def test_cancel_stops_the_search(sim15):
+    _, frame = sim15
+    with pytest.raises(SearchCancelled):
+        discover(frame, cancel=lambda: True)
+
+
+def test_progress_reports_levels(sim15):
+    _, frame = sim15
+    events = []
+    discover(frame, progress=events.append)
+    assert events and {e["phase"] for e in events} == {"skeleton"}
+    assert all(0 < e["done"] <= e["planned"] for e in events)
+
+
+def test_importing_the_engine_leaves_qt_out():
+    # STYLE.md C.14: the engine never imports Qt.
+    code = "import sys, discovery, discovery.cli; print(any('PySide6' in m for m in sys.modules))"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
+
+
+def test_result_from_dict_accepts_its_own_output(sim15):
+    _, frame = sim15
+    result = discover(frame, max_depth=1)
+    assert SearchResult.from_dict(result.to_dict()).edges == result.edges
