@@ -1,0 +1,806 @@
+"""The canvas: the diagram drawn in the product's own visual language (DESIGN.md §6).
+
+:class:`GraphCanvas` observes the session (result, positions, knowledge, overlay, selection,
+included variables) and sends clicks, drags and context-menu actions back to it. Nodes are
+white rounded rectangles with a slate border and a kind glyph; edges are slate — directed with
+a filled head, undirected without heads, contested dashed brick red with open heads at both
+ends. The knowledge overlay puts a deep-teal double bar across locked edges and shows
+forbidden pairs as faint dotted lines with a small cross. Stages are soft bands behind their
+nodes.
+"""
+
+from __future__ import annotations
+
+import math
+
+from PySide6.QtCore import QPointF, QRectF, Qt, Signal
+from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPainter,
+                           QPainterPath, QPainterPathStroker, QPen, QPolygonF)
+from PySide6.QtWidgets import (QGraphicsItem, QGraphicsScene, QGraphicsView, QLabel, QMenu,
+                               QWidget)
+
+from . import style
+
+NODE_H = 34.0
+ARROW_LEN = 11.0
+ARROW_HALF = 5.0
+
+
+# ----------------------------------------------------------------------------- drawing helpers
+
+def _unit(a: QPointF, b: QPointF):
+    dx, dy = b.x() - a.x(), b.y() - a.y()
+    length = math.hypot(dx, dy) or 1.0
+    return dx / length, dy / length, length
+
+
+def _head(painter: QPainter, tip: QPointF, ux: float, uy: float, *, filled: bool,
+          color: QColor, scale: float):
+    """An arrowhead with its tip at ``tip`` pointing along (ux, uy)."""
+    length, half = ARROW_LEN * scale, ARROW_HALF * scale
+    base = QPointF(tip.x() - ux * length, tip.y() - uy * length)
+    left = QPointF(base.x() - uy * half, base.y() + ux * half)
+    right = QPointF(base.x() + uy * half, base.y() - ux * half)
+    painter.save()
+    painter.setPen(QPen(color, 1.3 * scale, Qt.SolidLine, Qt.RoundCap, Qt.RoundJoin))
+    painter.setBrush(color if filled else style.CANVAS)
+    painter.drawPolygon(QPolygonF([tip, left, right]))
+    painter.restore()
+
+
+def _double_bar(painter: QPainter, a: QPointF, b: QPointF, scale: float):
+    ux, uy, length = _unit(a, b)
+    mid = QPointF((a.x() + b.x()) / 2, (a.y() + b.y()) / 2)
+    painter.save()
+    painter.setPen(QPen(style.TEAL, 2.2 * scale, Qt.SolidLine, Qt.FlatCap))
+    half = 7.0 * scale
+    for off in (-3.0 * scale, 3.0 * scale):
+        c = QPointF(mid.x() + ux * off, mid.y() + uy * off)
+        painter.drawLine(QPointF(c.x() - uy * half, c.y() + ux * half),
+                         QPointF(c.x() + uy * half, c.y() - ux * half))
+    painter.restore()
+
+
+def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: float = 4.5):
+    painter.save()
+    painter.setPen(QPen(color, 1.6 * scale, Qt.SolidLine, Qt.RoundCap))
+    s = size * scale
+    painter.drawLine(QPointF(at.x() - s, at.y() - s), QPointF(at.x() + s, at.y() + s))
+    painter.drawLine(QPointF(at.x() - s, at.y() + s), QPointF(at.x() + s, at.y() - s))
+    painter.restore()
+
+
+def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
+              forbidden_heads=(), hover: bool = False, selected: bool = False,
+              scale: float = 1.0, faded: bool = False):
+    """Draw one mark from a to b.
+
+    ``kind`` is ``directed`` (a → b), ``undirected``, ``contested``, ``forbidden`` (overlay),
+    ``pending-lock`` (a locked pair the current diagram does not have yet) or ``locked``
+    (legend sample: an undirected edge with the lock bar). ``forbidden_heads`` lists the ends
+    ("a" or "b") whose arrowhead is forbidden; each gets a small cross.
+    """
+    ux, uy, length = _unit(a, b)
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    painter.save()
+    painter.setRenderHint(QPainter.Antialiasing)
+    if faded:
+        painter.setOpacity(0.45)
+    if kind == "forbidden":
+        painter.setPen(QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawLine(a, b)
+        _cross(painter, QPointF((a.x() + b.x()) / 2, (a.y() + b.y()) / 2), style.FORBIDDEN,
+               scale)
+    elif kind == "pending-lock":
+        painter.setPen(QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawLine(a, b)
+        _double_bar(painter, a, b, scale)
+    else:
+        color = style.CONTESTED if kind == "contested" else style.SLATE
+        if selected:
+            halo = QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine, Qt.RoundCap)
+            painter.setPen(halo)
+            painter.drawLine(a, b)
+        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
+                   Qt.FlatCap)
+        if kind == "contested":
+            pen.setDashPattern([5, 3])
+        painter.setPen(pen)
+        inset_b = ARROW_LEN * scale * 0.8 if kind in ("directed", "contested") else 0
+        inset_a = ARROW_LEN * scale * 0.8 if kind == "contested" else 0
+        painter.drawLine(QPointF(a.x() + ux * inset_a, a.y() + uy * inset_a),
+                         QPointF(b.x() - ux * inset_b, b.y() - uy * inset_b))
+        if kind == "directed":
+            _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
+        elif kind == "contested":
+            _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
+            _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
+        if locked or kind == "locked":
+            _double_bar(painter, a, b, scale)
+    for end in forbidden_heads:
+        tip, sx, sy = (b, -ux, -uy) if end == "b" else (a, ux, uy)
+        at = QPointF(tip.x() + sx * 20 * scale, tip.y() + sy * 20 * scale)
+        _cross(painter, at, style.TEAL, scale, 3.5)
+    painter.restore()
+
+
+def _clip(center: QPointF, toward: QPointF, hw: float, hh: float, pad: float = 3.0) -> QPointF:
+    """Where the segment center → toward leaves a box of half sizes hw, hh (plus pad)."""
+    dx, dy = toward.x() - center.x(), toward.y() - center.y()
+    if dx == 0 and dy == 0:
+        return QPointF(center)
+    hw, hh = hw + pad, hh + pad
+    t = min(hw / abs(dx) if dx else math.inf, hh / abs(dy) if dy else math.inf)
+    t = min(t, 1.0)
+    return QPointF(center.x() + dx * t, center.y() + dy * t)
+
+
+# ----------------------------------------------------------------------------- items
+
+class NodeItem(QGraphicsItem):
+    """One variable: a white rounded rectangle with its kind glyph and name."""
+
+    def __init__(self, canvas: "GraphCanvas", name: str, kind: str, *, included: bool = True):
+        super().__init__()
+        self.canvas = canvas
+        self.name = name
+        self.kind = kind
+        self.included = included
+        self.selected = False
+        self.edges: list = []
+        font = canvas.node_font
+        self.text_width = QFontMetricsF(font).horizontalAdvance(name)
+        self.width = max(64.0, self.text_width + 40.0)
+        self.rect = QRectF(-self.width / 2, -NODE_H / 2, self.width, NODE_H)
+        self.setFlags(QGraphicsItem.ItemIsMovable | QGraphicsItem.ItemSendsGeometryChanges)
+        self.setAcceptHoverEvents(True)
+        self.setCursor(Qt.OpenHandCursor)
+        self.setZValue(10)
+        self.setToolTip(self._tooltip())
+
+    def _tooltip(self) -> str:
+        ds = self.canvas.session.dataset
+        parts = [self.name, f"kind: {self.kind}"]
+        if ds is not None and self.name in ds.missing_share:
+            parts.append(f"missing: {100 * ds.missing_share[self.name]:.1f}%")
+        if not self.included:
+            parts.append("left out of the search")
+        return "\n".join(parts)
+
+    @property
+    def half(self):
+        return self.width / 2, NODE_H / 2
+
+    def boundingRect(self) -> QRectF:
+        return self.rect.adjusted(-5, -5, 5, 5)
+
+    def paint(self, painter: QPainter, option, widget=None):
+        painter.setRenderHint(QPainter.Antialiasing)
+        if self.selected:
+            painter.setPen(Qt.NoPen)
+            painter.setBrush(style.SELECTED_HALO)
+            painter.drawRoundedRect(self.rect.adjusted(-4, -4, 4, 4), 11, 11)
+        pen = QPen(style.SELECTED_BORDER if self.selected else style.SLATE,
+                   2.2 if self.selected else 1.4)
+        if not self.included:
+            pen = QPen(style.MUTED, 1.2, Qt.DashLine)
+        painter.setPen(pen)
+        painter.setBrush(style.NODE_FILL)
+        painter.drawRoundedRect(self.rect, 8, 8)
+        glyph = QRectF(self.rect.left() + 9, -5.5, 13, 11)
+        style.paint_kind_glyph(painter, glyph, self.kind,
+                               style.SLATE if self.included else style.MUTED)
+        painter.setFont(self.canvas.node_font)
+        painter.setPen(QColor("#1B232B") if self.included else style.MUTED)
+        painter.drawText(QRectF(self.rect.left() + 28, self.rect.top(), self.width - 34,
+                                NODE_H), Qt.AlignVCenter | Qt.AlignLeft, self.name)
+
+    def itemChange(self, change, value):
+        if change == QGraphicsItem.ItemPositionHasChanged:
+            for edge in self.edges:
+                edge.update_geometry()
+            self.canvas._node_moved(self)
+        return super().itemChange(change, value)
+
+    def mousePressEvent(self, event):
+        if event.button() == Qt.LeftButton:
+            self.canvas._node_pressed(self, event.modifiers())
+            self.setCursor(Qt.ClosedHandCursor)
+        super().mousePressEvent(event)
+
+    def mouseReleaseEvent(self, event):
+        super().mouseReleaseEvent(event)
+        self.setCursor(Qt.OpenHandCursor)
+        self.canvas._node_released(self)
+
+
+class EdgeItem(QGraphicsItem):
+    """One edge of the result between two node items.
+
+    Attributes
+    ----------
+    kind : str
+        ``directed`` (source → target), ``undirected`` or ``contested``.
+    locked : bool
+        The pair is locked by the current knowledge (drawn with the teal bar while the
+        overlay is on).
+    """
+
+    def __init__(self, canvas: "GraphCanvas", edge, a: NodeItem, b: NodeItem, *,
+                 locked: bool, forbidden_heads=(), faded: bool = False):
+        super().__init__()
+        self.canvas = canvas
+        self.edge = edge
+        self.source, self.target = edge.source, edge.target
+        self.kind = edge.kind
+        self.locked = locked
+        self.forbidden_heads = tuple(forbidden_heads)
+        self.faded = faded
+        self.a, self.b = a, b
+        self.hover = False
+        self.selected = False
+        self.p1 = QPointF()
+        self.p2 = QPointF()
+        self._shape = QPainterPath()
+        self.setAcceptHoverEvents(True)
+        self.setZValue(5)
+        self.setCursor(Qt.PointingHandCursor)
+        a.edges.append(self)
+        b.edges.append(self)
+        self.setToolTip(self._tooltip())
+        self.update_geometry()
+
+    def _tooltip(self) -> str:
+        e = self.edge
+        p = e.max_pvalue
+        decisive = ("no test ran on this pair" if p != p
+                    else f"decisive p-value {p:.3g} (largest of {e.tests} tests; "
+                         f"kept because below α)")
+        why = e.reason or "direction not determined by the data"
+        lines = [e.arrow(), decisive, why]
+        if self.locked:
+            lines.append("locked by knowledge")
+        return "\n".join(lines)
+
+    def update_geometry(self):
+        self.prepareGeometryChange()
+        ca, cb = self.a.pos(), self.b.pos()
+        self.p1 = _clip(ca, cb, *self.a.half)
+        self.p2 = _clip(cb, ca, *self.b.half)
+        path = QPainterPath(self.p1)
+        path.lineTo(self.p2)
+        stroker = QPainterPathStroker()
+        stroker.setWidth(12)
+        self._shape = stroker.createStroke(path)
+
+    def boundingRect(self) -> QRectF:
+        return QRectF(self.p1, self.p2).normalized().adjusted(-14, -14, 14, 14)
+
+    def shape(self) -> QPainterPath:
+        return self._shape
+
+    def paint(self, painter: QPainter, option, widget=None):
+        overlay = self.canvas.session.overlay
+        draw_edge(painter, self.p1, self.p2, self.kind, locked=self.locked and overlay,
+                  forbidden_heads=self.forbidden_heads if overlay else (),
+                  hover=self.hover, selected=self.selected, faded=self.faded)
+
+    def hoverEnterEvent(self, event):
+        self.hover = True
+        self.update()
+
+    def hoverLeaveEvent(self, event):
+        self.hover = False
+        self.update()
+
+    def mousePressEvent(self, event):
+        if event.button() == Qt.LeftButton:
+            self.canvas.session.select_pair(self.source, self.target)
+            event.accept()
+        else:
+            super().mousePressEvent(event)
+
+
+class OverlayItem(QGraphicsItem):
+    """A knowledge mark with no edge in the diagram: a forbidden pair, or a locked pair the
+    current diagram does not have (yet)."""
+
+    def __init__(self, canvas, kind: str, a: NodeItem, b: NodeItem):
+        super().__init__()
+        self.canvas = canvas
+        self.kind = kind
+        self.source, self.target = a.name, b.name
+        self.a, self.b = a, b
+        self.p1 = QPointF()
+        self.p2 = QPointF()
+        self.setZValue(2)
+        a.edges.append(self)
+        b.edges.append(self)
+        self.setToolTip(f"{a.name} — {b.name}: "
+                        + ("forbidden by knowledge" if kind == "forbidden"
+                           else "locked by knowledge; run again to see it in the diagram"))
+        self.update_geometry()
+
+    def update_geometry(self):
+        self.prepareGeometryChange()
+        ca, cb = self.a.pos(), self.b.pos()
+        self.p1 = _clip(ca, cb, *self.a.half)
+        self.p2 = _clip(cb, ca, *self.b.half)
+
+    def boundingRect(self) -> QRectF:
+        return QRectF(self.p1, self.p2).normalized().adjusted(-10, -10, 10, 10)
+
+    def shape(self) -> QPainterPath:
+        path = QPainterPath(self.p1)
+        path.lineTo(self.p2)
+        stroker = QPainterPathStroker()
+        stroker.setWidth(8)
+        return stroker.createStroke(path)
+
+    def paint(self, painter, option, widget=None):
+        draw_edge(painter, self.p1, self.p2, self.kind)
+
+    def mousePressEvent(self, event):
+        if event.button() == Qt.LeftButton:
+            self.canvas.session.select_pair(self.source, self.target)
+            event.accept()
+
+
+class StageBand(QGraphicsItem):
+    """A soft band behind the nodes of one stage."""
+
+    def __init__(self, index: int, font: QFont):
+        super().__init__()
+        self.index = index
+        self.font = font
+        self.rect = QRectF()
+        self.setZValue(-10)
+        self.setAcceptedMouseButtons(Qt.NoButton)
+
+    def set_rect(self, rect: QRectF):
+        self.prepareGeometryChange()
+        self.rect = rect
+
+    def boundingRect(self):
+        return self.rect
+
+    def paint(self, painter, option, widget=None):
+        painter.setRenderHint(QPainter.Antialiasing)
+        painter.setPen(Qt.NoPen)
+        painter.setBrush(style.BAND_FILLS[self.index % 2])
+        painter.drawRoundedRect(self.rect, 14, 14)
+        painter.setFont(self.font)
+        painter.setPen(style.BAND_TEXT)
+        painter.drawText(self.rect.adjusted(12, 8, -8, -8), Qt.AlignTop | Qt.AlignLeft,
+                         f"Stage {self.index + 1}")
+
+
+# ----------------------------------------------------------------------------- legend
+
+class Legend(QWidget):
+    """A small key of the marks in the canvas corner."""
+
+    ROWS = (("directed", "directed"), ("undirected", "undirected"),
+            ("contested", "contested"), ("locked", "locked (knowledge)"),
+            ("forbidden", "forbidden (knowledge)"))
+
+    def __init__(self, parent):
+        super().__init__(parent)
+        self.setObjectName("canvasLegend")
+        self.setAttribute(Qt.WA_TransparentForMouseEvents)
+        self.setFixedSize(190, 18 * len(self.ROWS) + 12)
+
+    def paintEvent(self, event):
+        p = QPainter(self)
+        p.setRenderHint(QPainter.Antialiasing)
+        p.setPen(QPen(QColor("#E2DFD8"), 1))
+        p.setBrush(QColor(251, 250, 248, 230))
+        p.drawRoundedRect(QRectF(0.5, 0.5, self.width() - 1, self.height() - 1), 6, 6)
+        font = QFont(self.font())
+        font.setPointSizeF(8.5)
+        p.setFont(font)
+        for i, (mark, text) in enumerate(self.ROWS):
+            y = 14 + i * 18
+            draw_edge(p, QPointF(10, y), QPointF(52, y), mark, scale=0.8)
+            p.setPen(style.SLATE)
+            p.drawText(QRectF(60, y - 9, 128, 18), Qt.AlignVCenter, text)
+
+
+# ----------------------------------------------------------------------------- the view
+
+class GraphCanvas(QGraphicsView):
+    """The diagram view over a session.
+
+    Parameters
+    ----------
+    session : gui._session.Session
+    """
+
+    zoomed = Signal(float)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self.setObjectName("canvas")
+        self.node_font = QFont(self.font())
+        self.node_font.setPointSizeF(10)
+        self.band_font = QFont(self.font())
+        self.band_font.setPointSizeF(9)
+        self.scene_ = QGraphicsScene(self)
+        self.scene_.setItemIndexMethod(QGraphicsScene.NoIndex)
+        self.setScene(self.scene_)
+        self.setBackgroundBrush(QBrush(style.CANVAS))
+        self.setRenderHints(QPainter.Antialiasing | QPainter.TextAntialiasing)
+        self.setViewportUpdateMode(QGraphicsView.SmartViewportUpdate)
+        self.setDragMode(QGraphicsView.ScrollHandDrag)
+        self.setTransformationAnchor(QGraphicsView.AnchorUnderMouse)
+        self.setResizeAnchor(QGraphicsView.AnchorViewCenter)
+        self.setFrameShape(QGraphicsView.NoFrame)
+        self.nodes: dict[str, NodeItem] = {}
+        self.edges: dict[frozenset, EdgeItem] = {}
+        self.overlays: list[OverlayItem] = []
+        self.bands: list[StageBand] = []
+        self._press_pos = None
+        self._refreshing = False
+        self._fit_pending = True
+
+        self.banner = QLabel(self.viewport())
+        self.banner.setObjectName("staleBanner")
+        self.banner.setWordWrap(True)
+        self.banner.hide()
+        self.hint = QLabel(self.viewport())
+        self.hint.setObjectName("canvasHint")
+        self.hint.setAlignment(Qt.AlignCenter)
+        self.legend = Legend(self.viewport())
+
+        ev = session.events
+        ev.result.connect(self._on_structure)
+        ev.dataset.connect(self._on_structure)
+        ev.included.connect(self._on_structure)
+        ev.knowledge.connect(self._on_knowledge)
+        ev.overlay.connect(self._on_overlay)
+        ev.positions.connect(self._on_positions)
+        ev.selection.connect(self._on_selection)
+        ev.stale.connect(self._on_banner)
+        ev.status.connect(self._on_banner)
+        self._rebuild()
+
+    # -- test and export helpers -------------------------------------------------------------
+    def edge_marks(self) -> dict:
+        """``{frozenset(pair): (source, target, kind, locked)}`` of the drawn edges."""
+        return {k: (e.source, e.target, e.kind, e.locked) for k, e in self.edges.items()}
+
+    def overlay_marks(self) -> set:
+        return {(o.kind, frozenset((o.source, o.target))) for o in self.overlays}
+
+    # -- building ----------------------------------------------------------------------------
+    def _on_structure(self, _=None):
+        self._rebuild()
+
+    def _rebuild(self):
+        s = self.session
+        self._refreshing = True
+        try:
+            self.scene_.clear()
+            self.nodes, self.edges, self.overlays, self.bands = {}, {}, [], []
+            kinds = dict(s.dataset.kinds) if s.dataset is not None else {}
+            included = set(s.included) if s.dataset is not None else set(s.variables)
+            for name in s.variables:
+                node = NodeItem(self, name, kinds.get(name, "continuous"),
+                                included=name in included)
+                xy = s.positions.get(name, (0.0, 0.0))
+                node.setPos(QPointF(*xy))
+                self.scene_.addItem(node)
+                self.nodes[name] = node
+            self._build_edges()
+            self._build_overlay()
+            self._update_bands()
+            self._on_selection(s.selection)
+        finally:
+            self._refreshing = False
+        self._on_banner()
+        self._update_scene_rect()
+        if self._fit_pending and self.nodes:
+            self.fit()
+
+    def _forbidden_heads(self, edge) -> tuple:
+        k = self.session.knowledge
+        heads = []
+        if (edge.source, edge.target) in k.forbidden_directions:
+            heads.append("b")
+        if (edge.target, edge.source) in k.forbidden_directions:
+            heads.append("a")
+        return tuple(heads)
+
+    def _build_edges(self):
+        s = self.session
+        for item in self.edges.values():
+            for node in (item.a, item.b):
+                if item in node.edges:
+                    node.edges.remove(item)
+            self.scene_.removeItem(item)
+        self.edges = {}
+        if s.result is None:
+            return
+        locked = s.knowledge.required_adjacent()
+        for e in s.result.edges:
+            a, b = self.nodes.get(e.source), self.nodes.get(e.target)
+            if a is None or b is None:
+                continue
+            item = EdgeItem(self, e, a, b, locked=e.pair in locked,
+                            forbidden_heads=self._forbidden_heads(e), faded=s.stale)
+            self.scene_.addItem(item)
+            self.edges[e.pair] = item
+
+    def _build_overlay(self):
+        s = self.session
+        for item in self.overlays:
+            for node in (item.a, item.b):
+                if item in node.edges:
+                    node.edges.remove(item)
+            self.scene_.removeItem(item)
+        self.overlays = []
+        if not s.overlay:
+            return
+        k = s.knowledge
+        marks = [("forbidden", p) for p in k.forbidden]
+        marks += [("pending-lock", tuple(p)) for p in k.required_adjacent()
+                  if p not in self.edges]
+        for kind, pair in marks:
+            a, b = (self.nodes.get(v) for v in sorted(pair))
+            if a is None or b is None or frozenset(pair) in self.edges:
+                continue
+            item = OverlayItem(self, kind, a, b)
+            self.scene_.addItem(item)
+            self.overlays.append(item)
+
+    def _on_knowledge(self, _=None):
+        locked = self.session.knowledge.required_adjacent()
+        for pair, item in self.edges.items():
+            item.locked = pair in locked
+            item.forbidden_heads = self._forbidden_heads(item.edge)
+            item.setToolTip(item._tooltip())
+            item.update()
+        self._build_overlay()
+        self._update_bands()
+
+    def _on_overlay(self, _=None):
+        self._build_overlay()
+        for item in self.edges.values():
+            item.update()
+
+    def _on_positions(self, positions):
+        self._refreshing = True
+        try:
+            for name, node in self.nodes.items():
+                xy = positions.get(name)
+                if xy is not None and (node.pos().x(), node.pos().y()) != xy:
+                    node.setPos(QPointF(*xy))
+        finally:
+            self._refreshing = False
+        self._update_bands()
+        self._update_scene_rect()
+
+    def _on_selection(self, selection):
+        chosen = set(selection)
+        for name, node in self.nodes.items():
+            on = name in chosen and len(chosen) == 1 or (len(chosen) == 2 and name in chosen)
+            if node.selected != on:
+                node.selected = on
+                node.update()
+        pair = frozenset(selection) if len(selection) == 2 else None
+        for key, item in self.edges.items():
+            on = key == pair
+            if item.selected != on:
+                item.selected = on
+                item.update()
+
+    def _update_bands(self):
+        for band in self.bands:
+            self.scene_.removeItem(band)
+        self.bands = []
+        stages = self.session.knowledge.stages
+        if not stages or not self.nodes:
+            return
+        tops = [n.pos().y() for n in self.nodes.values()]
+        top, bottom = min(tops) - NODE_H / 2 - 36, max(tops) + NODE_H / 2 + 18
+        for i, group in enumerate(stages):
+            members = [self.nodes[v] for v in group if v in self.nodes]
+            if not members:
+                continue
+            left = min(n.pos().x() - n.width / 2 for n in members) - 18
+            right = max(n.pos().x() + n.width / 2 for n in members) + 18
+            band = StageBand(i, self.band_font)
+            band.set_rect(QRectF(left, top, max(right - left, 90), bottom - top))
+            self.scene_.addItem(band)
+            self.bands.append(band)
+
+    def _update_scene_rect(self):
+        rect = self.scene_.itemsBoundingRect().adjusted(-400, -300, 400, 300)
+        self.scene_.setSceneRect(rect)
+
+    def _on_banner(self, _=None):
+        s = self.session
+        text = ""
+        if s.status in ("running", "stopping") and s.result is not None:
+            text = "Searching… the diagram below is the previous result."
+        elif s.stale and s.result is not None:
+            text = ("This diagram was found with other settings, knowledge or variables. "
+                    "Run (Ctrl+R) to bring it up to date.")
+        elif s.status == "stopped" and s.result is not None:
+            text = "The last run was stopped; the diagram is the previous complete result."
+        self.banner.setText(text)
+        self.banner.setVisible(bool(text))
+        if s.dataset is None and s.result is None:
+            hint = "Open a table (Ctrl+O) or drop a CSV file here"
+        elif s.result is None and s.status in ("running", "stopping"):
+            hint = "Searching…"
+        elif s.result is None:
+            hint = ("Press Run (Ctrl+R) to search for the diagram" if s.status != "stopped"
+                    else "Run stopped before it finished: no diagram. Press Run to start again")
+        else:
+            hint = ""
+        self.hint.setText(hint)
+        self.hint.setVisible(bool(hint))
+        for item in self.edges.values():
+            if item.faded != s.stale:
+                item.faded = s.stale
+                item.update()
+        self._place_overlays()
+
+    def _place_overlays(self):
+        vp = self.viewport()
+        self.banner.setMaximumWidth(max(200, vp.width() - 40))
+        self.banner.adjustSize()
+        self.banner.move((vp.width() - self.banner.width()) // 2, 12)
+        self.hint.setGeometry(0, vp.height() // 2 + 40, vp.width(), 30)
+        self.legend.move(10, vp.height() - self.legend.height() - 10)
+
+    def resizeEvent(self, event):
+        super().resizeEvent(event)
+        self._place_overlays()
+
+    def showEvent(self, event):
+        super().showEvent(event)
+        if self._fit_pending and self.nodes:
+            self.fit()
+
+    # -- interaction -------------------------------------------------------------------------
+    def _node_pressed(self, node: NodeItem, modifiers):
+        sel = self.session.selection
+        if modifiers & (Qt.ControlModifier | Qt.ShiftModifier) and len(sel) >= 1 \
+                and sel[-1] != node.name:
+            self.session.select_pair(sel[-1], node.name)
+        else:
+            self.session.select_node(node.name)
+        self._press_pos = (node.name, (node.pos().x(), node.pos().y()))
+
+    def _node_moved(self, node: NodeItem):
+        if self._refreshing:
+            return
+        if self.session.knowledge.stages:
+            self._update_bands()
+
+    def _node_released(self, node: NodeItem):
+        if self._press_pos is None or self._press_pos[0] != node.name:
+            return
+        before = self._press_pos[1]
+        self._press_pos = None
+        now = (node.pos().x(), node.pos().y())
+        if now != before:
+            self.session.move_nodes({node.name: now}, label=f"Move {node.name}")
+
+    def mousePressEvent(self, event):
+        item = self.itemAt(event.position().toPoint())
+        if item is None and event.button() == Qt.LeftButton:
+            self.session.clear_selection()
+        super().mousePressEvent(event)
+
+    def wheelEvent(self, event):
+        factor = 1.0015 ** event.angleDelta().y()
+        self.zoom(factor)
+
+    def zoom(self, factor: float):
+        current = self.transform().m11()
+        factor = max(0.1 / current, min(4.0 / current, factor))
+        self.scale(factor, factor)
+        self.zoomed.emit(self.transform().m11())
+
+    def fit(self):
+        """Fit the whole diagram in view (never zooming in past 1.25×)."""
+        if not self.nodes:
+            return
+        rect = QRectF()
+        for item in list(self.nodes.values()) + self.bands:
+            rect = rect.united(item.sceneBoundingRect())
+        rect = rect.adjusted(-40, -60, 40, 40)
+        if self.viewport().width() < 50:
+            return
+        self._fit_pending = False
+        self.fitInView(rect, Qt.KeepAspectRatio)
+        if self.transform().m11() > 1.25:
+            self.resetTransform()
+            self.scale(1.25, 1.25)
+            self.centerOn(rect.center())
+        self.zoomed.emit(self.transform().m11())
+
+    def request_fit(self):
+        self._fit_pending = True
+        self.fit()
+
+    def contextMenuEvent(self, event):
+        item = self.itemAt(event.pos())
+        menu = self.build_context_menu(item)
+        if menu is not None:
+            menu.exec(event.globalPos())
+
+    def build_context_menu(self, item) -> QMenu | None:
+        """The context menu for a canvas item (edge, node, overlay mark) or the background."""
+        s = self.session
+        menu = QMenu(self)
+        menu.setObjectName("canvasMenu")
+        if isinstance(item, (EdgeItem, OverlayItem)):
+            s.select_pair(item.source, item.target)
+            add_knowledge_actions(menu, s, item.source, item.target)
+        elif isinstance(item, NodeItem):
+            sel = s.selection
+            if len(sel) >= 1 and sel[-1] != item.name:
+                other = sel[-1]
+                s.select_pair(other, item.name)
+                add_knowledge_actions(menu, s, other, item.name)
+            else:
+                s.select_node(item.name)
+                hint = menu.addAction("Ctrl+click a second node to add knowledge about a pair")
+                hint.setEnabled(False)
+                menu.addSeparator()
+                stages = menu.addMenu("Move to stage")
+                stages.setObjectName("stageMenu")
+                for i in range(len(s.knowledge.stages) + 1):
+                    label = (f"Stage {i + 1}" if i < len(s.knowledge.stages)
+                             else "New last stage")
+                    act = stages.addAction(label)
+                    act.triggered.connect(
+                        lambda _=False, i=i, n=item.name: s.move_to_stage([n], i))
+                if s.knowledge.stage_of(item.name) is not None:
+                    act = menu.addAction("Take out of its stage")
+                    act.triggered.connect(lambda _=False, n=item.name: s.move_to_stage([n], None))
+                if s.dataset is not None and item.name in s.dataset.variables:
+                    inc = item.name in s.included
+                    act = menu.addAction("Leave out of the search" if inc
+                                         else "Include in the search")
+                    act.triggered.connect(
+                        lambda _=False, n=item.name, inc=inc: s.set_included(n, not inc))
+        else:
+            for text, slot in (("Arrange", s.arrange), ("Fit to view", self.request_fit)):
+                menu.addAction(text).triggered.connect(slot)
+            act = menu.addAction("Knowledge overlay")
+            act.setCheckable(True)
+            act.setChecked(s.overlay)
+            act.toggled.connect(lambda on: setattr(s, "overlay", on))
+        return menu
+
+
+def add_knowledge_actions(menu: QMenu, session, a: str, b: str) -> list[QAction]:
+    """Lock / lock direction / forbid / forbid direction / clear for the pair (a, b)."""
+    statements = session.pair_statements(a, b)
+    title = menu.addAction(f"{a} — {b}" + (f"  ({'; '.join(statements)})" if statements
+                                            else ""))
+    title.setEnabled(False)
+    menu.addSeparator()
+    actions = []
+    for text, name, slot in (
+            (f"Lock edge {a} — {b}", "lockEdge", lambda: session.lock(a, b)),
+            (f"Lock direction {a} → {b}", "lockForward", lambda: session.lock_direction(a, b)),
+            (f"Lock direction {b} → {a}", "lockBackward", lambda: session.lock_direction(b, a)),
+            (f"Forbid edge {a} — {b}", "forbidEdge", lambda: session.forbid(a, b)),
+            (f"Forbid direction {a} → {b}", "forbidForward",
+             lambda: session.forbid_direction(a, b)),
+            (f"Forbid direction {b} → {a}", "forbidBackward",
+             lambda: session.forbid_direction(b, a)),
+            ("Clear knowledge on this pair", "clearPair", lambda: session.clear_pair(a, b))):
+        act = menu.addAction(text)
+        act.setObjectName(name)
+        act.triggered.connect(lambda _=False, slot=slot: slot())
+        actions.append(act)
+    actions[-1].setEnabled(any(not t.startswith("stage order") for t in statements))
+    return actions

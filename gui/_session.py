@@ -1,0 +1,1000 @@
+"""The window's state as a pure model: no Qt here, so it can be tested and scripted headless.
+
+A :class:`Session` holds everything the window shows — the data, the search settings, the
+knowledge, the included variables, the last result, the run's status and progress, the
+selection, the node positions, the overlay toggle — as *fields*. Each field has one emitter in
+:attr:`Session.events`, which fires only when the value really changes; :meth:`Session.update`
+sets several fields and then fires each changed field once. Views (``gui/_qt``) connect to the
+emitters and send user actions back through the methods below; they never update each other.
+
+Knowledge edits and layout moves go on one undo history (:meth:`Session.undo`,
+:meth:`Session.redo`). A session is saved as one JSON file (``.edgewise``; see
+:data:`FORMAT`), validated on open; an autosave copy lets the window offer recovery after a
+crash. Errors meant for the user go to :attr:`Session.notifications` as one line, the same line
+the command line prints.
+
+A run is prepared here (:meth:`Session.start_run` returns a :class:`SearchJob`, a frozen
+snapshot of the inputs) and executed wherever the caller likes — a worker thread in the
+window, inline in tests. Every run reuses the session's one
+:class:`~discovery.independence.PValueCache`, so a re-run after a knowledge or α edit answers
+from the cache.
+
+This module must not import Qt (checked by ``tests/gui/test_session.py``).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import os
+import threading
+import time
+import warnings
+from pathlib import Path
+from types import MappingProxyType
+from typing import Callable, Iterable, Mapping
+
+import numpy as np
+
+from discovery import __version__ as ENGINE_VERSION
+from discovery.exceptions import (DiscoveryError, KnowledgeError, ResultFormatError,
+                                  SearchCancelled, SettingsError)
+from discovery.independence import PValueCache
+from discovery.knowledge import Knowledge
+from discovery.result import SearchResult
+from discovery.settings import SearchSettings
+
+from . import _layout
+from ._events import EventGroup
+from ._notifications import NotificationChannel
+
+__all__ = ["Session", "SearchJob", "FORMAT", "VERSION", "STATUSES", "FIELDS",
+           "restrict_knowledge"]
+
+FORMAT = "edgewise-session"
+VERSION = 1
+SUFFIX = ".edgewise"
+
+#: Run states: ``idle`` (nothing run yet), ``running``, ``stopping`` (stop asked, the worker
+#: has not answered yet), ``done``, ``stopped`` (no result from that run), ``failed``.
+STATUSES = ("idle", "running", "stopping", "done", "stopped", "failed")
+
+#: Field names and their defaults.
+FIELDS = {
+    "data_path": None,          # str | None: the data file, absolute
+    "dataset": None,            # discovery.data.Dataset | None: every column read
+    "included": (),             # tuple of str: variables the search uses, in data order
+    "settings": SearchSettings(),
+    "knowledge": Knowledge(),
+    "result": None,             # SearchResult | None: the last finished search
+    "stale": False,             # the result was found with other inputs than the current ones
+    "status": "idle",
+    "progress": None,           # dict | None: phase, level, done, planned, elapsed
+    "selection": (),            # () | (node,) | (a, b): a node, or a pair (edge or not)
+    "positions": MappingProxyType({}),  # name -> (x, y), node centres in canvas units
+    "overlay": True,            # show the knowledge overlay on the canvas
+    "session_path": None,       # str | None: where the session was last saved or opened
+    "dirty": False,             # changed since last save or open
+    "history": (None, None),    # labels of the next undo and redo, or None
+    "log": (),                  # run log lines
+}
+
+_IDENTITY_FIELDS = {"dataset", "result"}
+_INPUT_FIELDS = {"settings", "knowledge", "included"}
+_SAVED_FIELDS = {"settings", "knowledge", "included", "result", "positions", "overlay",
+                 "data_path"}
+_LOG_LINES = 2000
+_STOP_CHUNK = 2048  # a batch is split so that a stop is seen within one chunk
+
+
+def _same(name, a, b) -> bool:
+    if a is b:
+        return True
+    if name in _IDENTITY_FIELDS:
+        return False
+    try:
+        return bool(a == b)
+    except Exception:  # e.g. numpy arrays in foreign values
+        return False
+
+
+def restrict_knowledge(knowledge: Knowledge, names: Iterable[str]) -> Knowledge:
+    """The knowledge statements that name only variables in ``names`` (stages filtered)."""
+    keep = set(names)
+    pairs = {f: tuple(p for p in getattr(knowledge, f) if set(p) <= keep)
+             for f in ("locked", "locked_directions", "forbidden", "forbidden_directions")}
+    stages = tuple(tuple(v for v in g if v in keep) for g in knowledge.stages)
+    return Knowledge(**pairs, stages=tuple(g for g in stages if g))
+
+
+@dataclasses.dataclass
+class _Command:
+    label: str
+    changes: dict  # field -> (before, after)
+
+
+@dataclasses.dataclass(frozen=True)
+class SearchJob:
+    """A frozen snapshot of one run's inputs; :meth:`run` does the work (any thread).
+
+    Attributes
+    ----------
+    run_id : int
+        Matches :attr:`Session.run_id` while this run is the current one; a late answer from
+        an older run is ignored.
+    """
+
+    run_id: int
+    dataset: object
+    included: tuple
+    settings: SearchSettings
+    knowledge: Knowledge
+    cache: PValueCache
+    cancel: threading.Event = dataclasses.field(default_factory=threading.Event)
+    started: float = dataclasses.field(default_factory=time.perf_counter)
+
+    def run(self, progress: Callable | None = None) -> tuple[SearchResult, list[str]]:
+        """Prepare the data and search; return the result and the warnings raised.
+
+        Raises
+        ------
+        DiscoveryError
+            Data, knowledge or settings that cannot be used (one-line message).
+        SearchCancelled
+            :attr:`cancel` was set.
+        """
+        from discovery import discover
+        from discovery.data import prepare_frame
+
+        def report(info):
+            if progress is not None:
+                info = dict(info)
+                info["elapsed"] = time.perf_counter() - self.started
+                progress(info)
+
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            ds = self.dataset
+            prepared = prepare_frame(ds.frame, columns=list(self.included),
+                                     missing=self.settings.missing, source=ds.source)
+            prepared = dataclasses.replace(prepared, sha256=ds.sha256,
+                                           rows_read=ds.rows_read)
+            knowledge = restrict_knowledge(self.knowledge, prepared.variables)
+            report({"phase": "prepare", "level": 0, "done": 0, "planned": 0})
+            result = discover(
+                prepared, test=self.settings.test, alpha=self.settings.alpha,
+                max_depth=self.settings.max_depth, knowledge=knowledge,
+                collider_rule=self.settings.collider_rule, missing=self.settings.missing,
+                cache=_StoppableCache(self.cache, self.cancel), progress=report,
+                cancel=self.cancel)
+        seen = []
+        for w in caught:
+            text = str(w.message)
+            if text not in seen:
+                seen.append(text)
+        return result, seen
+
+
+class _StoppableCache:
+    """The session's cache, answering big batches in chunks and checking the stop flag
+    between them, so that Stop is honoured within one chunk (well under a second). Every
+    other attribute is the wrapped cache's."""
+
+    def __init__(self, cache: PValueCache, cancel: threading.Event):
+        self._cache = cache
+        self._cancel = cancel
+
+    def __getattr__(self, name):
+        return getattr(self._cache, name)
+
+    def _check(self):
+        if self._cancel.is_set():
+            raise SearchCancelled("the search was stopped before it finished")
+
+    def pvalues(self, test, triples, **options):
+        triples = list(triples)
+        parts = []
+        for start in range(0, len(triples), _STOP_CHUNK):
+            self._check()
+            parts.append(np.asarray(self._cache.pvalues(
+                test, triples[start:start + _STOP_CHUNK], **options), dtype=float))
+        return np.concatenate(parts) if parts else np.empty(0)
+
+    def pvalues_array(self, test, idx, **options):
+        idx = np.asarray(idx)
+        parts = []
+        for start in range(0, len(idx), _STOP_CHUNK):
+            self._check()
+            parts.append(np.asarray(self._cache.pvalues_array(
+                test, idx[start:start + _STOP_CHUNK], **options), dtype=float))
+        return np.concatenate(parts) if parts else np.empty(0)
+
+
+class Session:
+    """The evented model of one workspace.
+
+    Parameters
+    ----------
+    notifications : NotificationChannel, optional
+        Where user-facing messages go (a new channel by default).
+    autosave_path : str or Path, optional
+        Where :meth:`autosave` writes; None disables autosave.
+
+    Attributes
+    ----------
+    events : EventGroup
+        One emitter per field (``session.events.result.connect(callback)``); a callback
+        receives the new value.
+    notifications : NotificationChannel
+    cache : PValueCache
+        Shared by every run of this session's data.
+    run_id : int
+        Increases at every :meth:`start_run`.
+    """
+
+    def __init__(self, *, notifications: NotificationChannel | None = None,
+                 autosave_path=None):
+        object.__setattr__(self, "_values", dict(FIELDS))
+        object.__setattr__(self, "events", EventGroup(FIELDS))
+        object.__setattr__(self, "notifications", notifications or NotificationChannel())
+        object.__setattr__(self, "autosave_path",
+                           None if autosave_path is None else Path(autosave_path))
+        object.__setattr__(self, "cache", PValueCache())
+        object.__setattr__(self, "run_id", 0)
+        object.__setattr__(self, "_job", None)
+        object.__setattr__(self, "_undo", [])
+        object.__setattr__(self, "_redo", [])
+        object.__setattr__(self, "_result_key", None)
+        object.__setattr__(self, "_generation", 0)
+        object.__setattr__(self, "_autosaved_generation", 0)
+
+    # -- fields -------------------------------------------------------------------------------
+    def __getattr__(self, name):
+        values = object.__getattribute__(self, "_values")
+        if name in values:
+            return values[name]
+        raise AttributeError(f"Session has no field or attribute {name!r}")
+
+    def __setattr__(self, name, value):
+        if name in FIELDS:
+            self.update({name: value})
+        else:
+            object.__setattr__(self, name, value)
+
+    def update(self, values: Mapping) -> list[str]:
+        """Set several fields, then emit each field that changed, once, in field order.
+
+        Returns
+        -------
+        list of str
+            The names of the fields that changed.
+        """
+        changed = []
+        for name, value in values.items():
+            if name not in FIELDS:
+                raise AttributeError(f"Session has no field {name!r}; fields: {list(FIELDS)}")
+            value = self._coerce(name, value)
+            if not _same(name, self._values[name], value):
+                self._values[name] = value
+                changed.append(name)
+        if not changed:
+            return []
+        touched = set(changed)
+        if touched & (_INPUT_FIELDS | {"result"}):
+            stale = self._compute_stale()
+            if stale != self._values["stale"]:
+                self._values["stale"] = stale
+                changed.append("stale")
+        if touched & _SAVED_FIELDS and "dirty" not in values:
+            object.__setattr__(self, "_generation", self._generation + 1)
+            if not self._values["dirty"]:
+                self._values["dirty"] = True
+                changed.append("dirty")
+        order = list(FIELDS)
+        for name in sorted(set(changed), key=order.index):
+            getattr(self.events, name).emit(self._values[name])
+        return changed
+
+    def _coerce(self, name, value):
+        if name == "settings" and not isinstance(value, SearchSettings):
+            raise TypeError("settings must be a discovery.SearchSettings")
+        if name == "knowledge" and not isinstance(value, Knowledge):
+            raise TypeError("knowledge must be a discovery.Knowledge")
+        if name == "result" and value is not None and not isinstance(value, SearchResult):
+            raise TypeError("result must be a discovery.SearchResult or None")
+        if name in ("included", "selection", "log"):
+            value = tuple(value)
+        if name == "selection" and len(value) > 2:
+            raise ValueError("selection holds at most two variables")
+        if name == "positions":
+            value = MappingProxyType({str(k): (float(v[0]), float(v[1]))
+                                      for k, v in dict(value).items()})
+        if name == "status" and value not in STATUSES:
+            raise ValueError(f"status must be one of {STATUSES}; got {value!r}")
+        if name in ("overlay", "stale", "dirty"):
+            value = bool(value)
+        return value
+
+    def _inputs_key(self):
+        return (self.settings, restrict_knowledge(self.knowledge, self.included),
+                tuple(self.included))
+
+    def _compute_stale(self) -> bool:
+        if self._values["result"] is None or self._result_key is None:
+            return False
+        return self._result_key != self._inputs_key()
+
+    @property
+    def variables(self) -> tuple[str, ...]:
+        """Every variable the canvas can show: the data's usable columns, else the result's."""
+        if self.dataset is not None:
+            return tuple(self.dataset.variables)
+        if self.result is not None:
+            return tuple(self.result.variables)
+        return ()
+
+    # -- logging ------------------------------------------------------------------------------
+    def append_log(self, line: str) -> None:
+        stamp = time.strftime("%H:%M:%S")
+        lines = (self.log + (f"{stamp}  {line}",))[-_LOG_LINES:]
+        self.update({"log": lines})
+
+    def _error(self, message, title):
+        self.append_log(f"{title}: {message}")
+        self.notifications.error(str(message), title=title)
+
+    # -- data ---------------------------------------------------------------------------------
+    def open_data(self, path) -> bool:
+        """Read a table and start a fresh workspace on it.
+
+        Knowledge is kept when every variable it names is in the new data (re-opening an
+        updated export of the same study); everything else is reset. On a bad file the
+        session is left as it was and the one-line message goes to the notifications.
+        """
+        from discovery.data import read_table
+        label = str(path)
+        try:
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                dataset = read_table(path, missing="test-wise")
+        except DiscoveryError as err:
+            self._error(err, "Open data")
+            return False
+        knowledge = self.knowledge
+        if not knowledge.variables <= set(dataset.variables):
+            knowledge = Knowledge()
+        self._reset_history()
+        object.__setattr__(self, "cache", PValueCache())
+        object.__setattr__(self, "_result_key", None)
+        self.update({
+            "data_path": str(Path(path).resolve()), "dataset": dataset,
+            "included": dataset.variables, "knowledge": knowledge, "result": None,
+            "status": "idle", "progress": None, "selection": (),
+            "positions": _layout.arrange(dataset.variables, (), knowledge.stages),
+            "session_path": None,
+        })
+        self.update({"dirty": False})
+        self.append_log(f"opened {label}: {dataset.rows_read} rows, "
+                        f"{len(dataset.variables)} usable columns of {len(dataset.kinds)}"
+                        f" (SHA-256 {dataset.sha256[:12]})")
+        for note in list(dataset.notes) + [str(w.message) for w in caught]:
+            self.append_log(f"note: {note}")
+        return True
+
+    def load_knowledge(self, path) -> bool:
+        """Replace the knowledge with a knowledge file's (undoable)."""
+        from discovery.knowledge import read_knowledge
+        try:
+            knowledge = read_knowledge(path)
+            knowledge.check_variables(self.variables, source=str(path))
+        except DiscoveryError as err:
+            self._error(err, "Load knowledge")
+            return False
+        self._edit({"knowledge": knowledge}, f"Load knowledge from {Path(path).name}",
+                   rearrange=bool(knowledge.stages) != bool(self.knowledge.stages)
+                   or knowledge.stages != self.knowledge.stages)
+        self.append_log(f"knowledge loaded from {path}")
+        return True
+
+    def save_knowledge(self, path) -> bool:
+        from discovery.knowledge import write_knowledge
+        try:
+            write_knowledge(self.knowledge, path)
+        except OSError as err:
+            self._error(f"{path}: cannot write ({err.strerror or err}); choose another "
+                        "folder", "Save knowledge")
+            return False
+        return True
+
+    def set_included(self, name: str, included: bool) -> bool:
+        """Include or leave out one variable of the data."""
+        if self.dataset is None or name not in self.dataset.variables:
+            self._error(f"{name!r} is not a usable column of the data", "Include variable")
+            return False
+        keep = set(self.included)
+        keep.add(name) if included else keep.discard(name)
+        self.update({"included": tuple(v for v in self.dataset.variables if v in keep)})
+        return True
+
+    # -- settings -----------------------------------------------------------------------------
+    def set_setting(self, name: str, value) -> bool:
+        """Change one search setting; a value outside :data:`discovery.PARAMETERS` is refused
+        with the engine's message."""
+        values = self.settings.to_dict()
+        if name not in values:
+            self._error(f"unknown setting {name!r}; choose one of {list(values)}", "Settings")
+            return False
+        values[name] = value
+        try:
+            settings = SearchSettings(**values)
+        except SettingsError as err:
+            self._error(err, "Settings")
+            return False
+        self.update({"settings": settings})
+        return True
+
+    # -- selection ----------------------------------------------------------------------------
+    def select_node(self, name: str | None) -> None:
+        self.update({"selection": () if name is None else (name,)})
+
+    def select_pair(self, a: str, b: str) -> None:
+        if a == b:
+            self.select_node(a)
+        else:
+            self.update({"selection": (a, b)})
+
+    def clear_selection(self) -> None:
+        self.update({"selection": ()})
+
+    # -- knowledge edits (undoable) -----------------------------------------------------------
+    def lock(self, a: str, b: str) -> bool:
+        """Lock the edge a — b (must be adjacent; direction left to the search)."""
+        return self._pair_edit("locked", a, b, f"Lock {a} — {b}")
+
+    def lock_direction(self, a: str, b: str) -> bool:
+        """Lock the direction a → b."""
+        return self._pair_edit("locked_directions", a, b, f"Lock {a} → {b}")
+
+    def forbid(self, a: str, b: str) -> bool:
+        """Forbid any edge between a and b."""
+        return self._pair_edit("forbidden", a, b, f"Forbid {a} — {b}")
+
+    def forbid_direction(self, a: str, b: str) -> bool:
+        """Forbid a → b (b → a stays possible)."""
+        return self._pair_edit("forbidden_directions", a, b, f"Forbid {a} → {b}")
+
+    def clear_pair(self, a: str, b: str) -> bool:
+        """Remove every statement about the pair {a, b}."""
+        knowledge = self.knowledge.without_pair(a, b)
+        if knowledge == self.knowledge:
+            return False
+        self._edit({"knowledge": knowledge}, f"Clear knowledge on {a} — {b}")
+        return True
+
+    def pair_statements(self, a: str, b: str) -> list[str]:
+        """The knowledge about {a, b} in words (for the inspector)."""
+        k = self.knowledge
+        out = []
+        for field_name, text in (("locked", "locked edge"), ("forbidden", "forbidden edge")):
+            if any(set(p) == {a, b} for p in getattr(k, field_name)):
+                out.append(text)
+        for x, y in k.locked_directions:
+            if {x, y} == {a, b}:
+                out.append(f"locked direction {x} → {y}")
+        for x, y in k.forbidden_directions:
+            if {x, y} == {a, b}:
+                out.append(f"forbidden direction {x} → {y}")
+        for x, y in ((a, b), (b, a)):
+            if k.is_direction_forbidden(x, y) == "stage order":
+                out.append(f"stage order rules out {x} → {y}")
+        return out
+
+    def _pair_edit(self, field_name, a, b, label) -> bool:
+        for v in (a, b):
+            if v not in self.variables:
+                self._error(f"{v!r} is not a variable of this session", "Knowledge")
+                return False
+        try:
+            knowledge = self.knowledge.with_pair(field_name, a, b)
+        except KnowledgeError as err:
+            self._error(err, "Knowledge")
+            return False
+        if knowledge == self.knowledge:
+            return False
+        self._edit({"knowledge": knowledge}, label)
+        return True
+
+    def set_stages(self, stages, *, label: str = "Edit stages") -> bool:
+        """Replace the stages (an ordered list of groups) and re-arrange the canvas, as one
+        undoable step."""
+        stages = tuple(tuple(g) for g in stages if len(tuple(g)))
+        unknown = sorted({v for g in stages for v in g} - set(self.variables))
+        if unknown:
+            self._error(f"unknown variable(s) {unknown} in stages", "Stages")
+            return False
+        try:
+            knowledge = self.knowledge.with_stages(stages)
+        except KnowledgeError as err:
+            self._error(err, "Stages")
+            return False
+        if knowledge == self.knowledge:
+            return False
+        self._edit({"knowledge": knowledge}, label, rearrange=True)
+        return True
+
+    def move_to_stage(self, names: Iterable[str], stage: int | None) -> bool:
+        """Move variables into stage ``stage`` (0-based; ``len(stages)`` opens a new last
+        stage; None takes them out of every stage)."""
+        names = [n for n in names]
+        groups = [[v for v in g if v not in names] for g in self.knowledge.stages]
+        if stage is not None:
+            while len(groups) <= stage:
+                groups.append([])
+            groups[stage].extend(n for n in names if n not in groups[stage])
+        groups = [g for g in groups if g]
+        what = ", ".join(names)
+        label = (f"Move {what} out of the stages" if stage is None
+                 else f"Move {what} to stage {stage + 1}")
+        return self.set_stages(groups, label=label)
+
+    def move_stage(self, index: int, to: int) -> bool:
+        groups = list(self.knowledge.stages)
+        if not (0 <= index < len(groups)) or not (0 <= to < len(groups)) or index == to:
+            return False
+        groups.insert(to, groups.pop(index))
+        return self.set_stages(groups, label=f"Move stage {index + 1} to place {to + 1}")
+
+    def remove_stage(self, index: int) -> bool:
+        groups = list(self.knowledge.stages)
+        if not 0 <= index < len(groups):
+            return False
+        groups.pop(index)
+        return self.set_stages(groups, label=f"Remove stage {index + 1}")
+
+    # -- layout (undoable) --------------------------------------------------------------------
+    def move_nodes(self, moved: Mapping[str, tuple[float, float]], *,
+                   label: str = "Move node") -> None:
+        """Record dragged nodes' new centres (one undoable step)."""
+        positions = dict(self.positions)
+        positions.update({k: (float(x), float(y)) for k, (x, y) in moved.items()})
+        self._edit({"positions": positions}, label)
+
+    def arrange(self) -> None:
+        """Lay the canvas out afresh: layered by stage when stages exist, else force-directed."""
+        self._edit({"positions": self._arranged()}, "Arrange")
+
+    def _arranged(self, knowledge: Knowledge | None = None) -> dict:
+        knowledge = knowledge or self.knowledge
+        edges = [(e.source, e.target) for e in self.result.edges] if self.result else []
+        return _layout.arrange(self.variables, edges, knowledge.stages)
+
+    def _ensure_positions(self) -> None:
+        missing = [v for v in self.variables if v not in self.positions]
+        if not missing:
+            return
+        if len(missing) == len(self.variables) or not self.positions:
+            self.update({"positions": self._arranged()})
+            return
+        fresh = self._arranged()
+        positions = dict(self.positions)
+        left, top, right, bottom = _layout.bounds(positions)
+        for i, v in enumerate(missing):
+            positions[v] = fresh.get(v, (right + _layout.MIN_GAP_X, top + i * 60.0))
+        self.update({"positions": positions})
+
+    # -- undo / redo --------------------------------------------------------------------------
+    def _edit(self, values: dict, label: str, *, rearrange: bool = False) -> None:
+        if rearrange and "knowledge" in values:
+            values = dict(values)
+            values["positions"] = self._arranged(values["knowledge"])
+        changes = {k: (self._values[k], v) for k, v in values.items()
+                   if not _same(k, self._values[k], self._coerce(k, v))}
+        if not changes:
+            return
+        self._undo.append(_Command(label, changes))
+        del self._undo[:-200]
+        self._redo.clear()
+        self.update({k: after for k, (_, after) in changes.items()})
+        self._sync_history()
+
+    def undo(self) -> bool:
+        """Undo the last knowledge edit or layout move."""
+        if not self._undo:
+            return False
+        command = self._undo.pop()
+        self._redo.append(command)
+        self.update({k: before for k, (before, _) in command.changes.items()})
+        self._sync_history()
+        self.append_log(f"undo: {command.label}")
+        return True
+
+    def redo(self) -> bool:
+        if not self._redo:
+            return False
+        command = self._redo.pop()
+        self._undo.append(command)
+        self.update({k: after for k, (_, after) in command.changes.items()})
+        self._sync_history()
+        self.append_log(f"redo: {command.label}")
+        return True
+
+    def _sync_history(self):
+        self.update({"history": (self._undo[-1].label if self._undo else None,
+                                 self._redo[-1].label if self._redo else None)})
+
+    def _reset_history(self):
+        self._undo.clear()
+        self._redo.clear()
+        self._sync_history()
+
+    # -- runs ---------------------------------------------------------------------------------
+    def start_run(self) -> SearchJob | None:
+        """Snapshot the inputs and mark the session running; None (with a message) when
+        there is nothing to search or a run is already going."""
+        if self.status in ("running", "stopping"):
+            self.notifications.info("a search is already running; stop it first",
+                                    title="Run")
+            return None
+        if self.dataset is None:
+            self._error("no data open; open a CSV, TSV or Parquet file first (File → Open "
+                        "data)", "Run")
+            return None
+        if len(self.included) < 2:
+            self._error("a search needs at least 2 included variables; tick more in the "
+                        "Variables panel", "Run")
+            return None
+        object.__setattr__(self, "run_id", self.run_id + 1)
+        job = SearchJob(self.run_id, self.dataset, tuple(self.included), self.settings,
+                        self.knowledge, self.cache)
+        object.__setattr__(self, "_job", job)
+        self.update({"status": "running",
+                     "progress": {"phase": "prepare", "level": 0, "done": 0, "planned": 0,
+                                  "elapsed": 0.0}})
+        s = self.settings
+        self.append_log(f"run {job.run_id}: {len(job.included)} variables, test {s.test}, "
+                        f"α = {s.alpha:g}, depth "
+                        f"{'no limit' if s.max_depth is None else s.max_depth}, "
+                        f"collider rule {s.collider_rule}, missing {s.missing}")
+        return job
+
+    @property
+    def job(self) -> SearchJob | None:
+        """The current run's job, or None."""
+        return self._job
+
+    def report_progress(self, job: SearchJob, info: Mapping) -> None:
+        if job is self._job and self.status in ("running", "stopping"):
+            self.update({"progress": dict(info)})
+
+    def stop_run(self) -> bool:
+        """Ask the current run to stop; its result, if it still arrives, is thrown away."""
+        if self._job is None or self.status not in ("running", "stopping"):
+            return False
+        self._job.cancel.set()
+        self.update({"status": "stopping"})
+        return True
+
+    def finish_run(self, job: SearchJob, result: SearchResult,
+                   warnings_seen: Iterable[str] = ()) -> bool:
+        """Show a finished run's result — only if it is the current run and was not
+        stopped. Returns whether the result was taken."""
+        if job is not self._job:
+            return False
+        object.__setattr__(self, "_job", None)
+        if job.cancel.is_set():
+            self._stopped(job)
+            return False
+        object.__setattr__(self, "_result_key",
+                           (job.settings, restrict_knowledge(job.knowledge, job.included),
+                            tuple(job.included)))
+        self.update({"result": result, "status": "done", "progress": None})
+        keep = tuple(v for v in self.selection if v in result.variables)
+        self.update({"selection": keep if len(keep) == len(self.selection) else ()})
+        self._ensure_positions()
+        c = result.counts
+        elapsed = time.perf_counter() - job.started
+        self.append_log(
+            f"run {job.run_id} done in {elapsed:.2f} s: {c.get('edges', 0)} edges "
+            f"({c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
+            f"{c.get('contested', 0)} contested); {c.get('tests', 0)} tests, "
+            f"{c.get('tests_from_cache', 0)} from the cache")
+        for text in list(warnings_seen) + list(result.conflicts) + list(result.notes):
+            self.append_log(f"note: {text}")
+        return True
+
+    def fail_run(self, job: SearchJob, message: str) -> None:
+        """A run ended with an error: show the one-line message, keep the previous result."""
+        if job is not self._job:
+            return
+        object.__setattr__(self, "_job", None)
+        if job.cancel.is_set():
+            self._stopped(job)
+            return
+        self.update({"status": "failed", "progress": None})
+        self._error(message, "Run")
+
+    def run_stopped(self, job: SearchJob) -> None:
+        if job is self._job:
+            object.__setattr__(self, "_job", None)
+            self._stopped(job)
+
+    def _stopped(self, job):
+        self.update({"status": "stopped", "progress": None})
+        self.append_log(f"run {job.run_id} stopped after "
+                        f"{time.perf_counter() - job.started:.2f} s; no result from it "
+                        + ("(the diagram shown is the previous run's)" if self.result
+                           else ""))
+
+    def run_inline(self) -> bool:
+        """Run a search in the calling thread (scripts and tests); True when a result came."""
+        job = self.start_run()
+        if job is None:
+            return False
+        try:
+            result, seen = job.run(lambda info: self.report_progress(job, info))
+        except SearchCancelled:
+            self.run_stopped(job)
+            return False
+        except DiscoveryError as err:
+            self.fail_run(job, str(err))
+            return False
+        return self.finish_run(job, result, seen)
+
+    # -- session files ------------------------------------------------------------------------
+    def to_dict(self, *, base: Path | None = None) -> dict:
+        """The session document (see :data:`FORMAT`)."""
+        data = None
+        if self.data_path is not None:
+            data = {"path": self.data_path, "relative": None,
+                    "sha256": self.dataset.sha256 if self.dataset is not None
+                    else (self.result.data.get("sha256") if self.result else None)}
+            if base is not None:
+                try:
+                    data["relative"] = os.path.relpath(self.data_path, base)
+                except ValueError:  # another drive on Windows
+                    pass
+        key = self._result_key
+        return {
+            "format": FORMAT,
+            "version": VERSION,
+            "software": {"edgewise": ENGINE_VERSION},
+            "saved": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+            "data": data,
+            "included": list(self.included),
+            "settings": self.settings.to_dict(),
+            "knowledge": self.knowledge.to_dict(),
+            "result": self.result.to_dict() if self.result is not None else None,
+            "result_inputs": None if key is None or self.result is None else {
+                "settings": key[0].to_dict(), "knowledge": key[1].to_dict(),
+                "included": list(key[2])},
+            "positions": {k: [round(x, 2), round(y, 2)] for k, (x, y) in
+                          self.positions.items()},
+            "overlay": self.overlay,
+            "selection": list(self.selection),
+        }
+
+    def save_session(self, path) -> bool:
+        """Write the session to ``path`` (``.edgewise`` is added when missing)."""
+        path = Path(path)
+        if path.suffix != SUFFIX:
+            path = path.with_name(path.name + SUFFIX)
+        try:
+            _write_atomic(path, json.dumps(self.to_dict(base=path.resolve().parent),
+                                           indent=1, ensure_ascii=False) + "\n")
+        except OSError as err:
+            self._error(f"{path}: cannot write the session ({err.strerror or err}); choose "
+                        "another folder", "Save session")
+            return False
+        self.update({"session_path": str(path.resolve())})
+        self.update({"dirty": False})
+        self.append_log(f"session saved to {path}")
+        return True
+
+    def open_session(self, path, *, recovered: bool = False) -> bool:
+        """Read and validate a ``.edgewise`` file and make it the current workspace.
+
+        Nothing changes unless the whole file is valid. A data file that moved or changed
+        is not an error: the saved result is shown, marked stale, with a warning.
+        """
+        try:
+            state, warns = _read_session(Path(path))
+        except DiscoveryError as err:
+            self._error(err, "Open session")
+            return False
+        self._reset_history()
+        object.__setattr__(self, "cache", PValueCache())
+        object.__setattr__(self, "_job", None)
+        object.__setattr__(self, "_result_key", state.pop("result_key"))
+        session_path = state.pop("session_path")
+        state.update({"status": "done" if state["result"] is not None else "idle",
+                      "progress": None,
+                      "session_path": None if recovered else str(Path(path).resolve())})
+        if recovered:
+            state["session_path"] = session_path
+        self.update(state)
+        self._ensure_positions()
+        self.update({"stale": self._compute_stale() or bool(state.get("stale"))})
+        self.update({"dirty": recovered})
+        object.__setattr__(self, "_autosaved_generation", self._generation)
+        self.append_log(("recovered the autosaved session" if recovered
+                         else f"session opened from {path}"))
+        for text in warns:
+            self.append_log(f"warning: {text}")
+            self.notifications.warning(text, title="Open session")
+        return True
+
+    # -- autosave and recovery ----------------------------------------------------------------
+    def autosave(self) -> bool:
+        """Write the autosave copy if anything changed since the last one."""
+        if self.autosave_path is None or self._generation == self._autosaved_generation:
+            return False
+        if self.dataset is None and self.result is None:
+            return False
+        doc = self.to_dict(base=self.autosave_path.parent)
+        doc["autosave_of"] = self.session_path
+        try:
+            self.autosave_path.parent.mkdir(parents=True, exist_ok=True)
+            _write_atomic(self.autosave_path, json.dumps(doc, ensure_ascii=False))
+        except OSError:
+            return False
+        object.__setattr__(self, "_autosaved_generation", self._generation)
+        return True
+
+    def discard_autosave(self) -> None:
+        """Delete the autosave copy (a clean close, or the user declined recovery)."""
+        if self.autosave_path is not None:
+            try:
+                self.autosave_path.unlink()
+            except FileNotFoundError:
+                pass
+            except OSError:
+                pass
+
+    @staticmethod
+    def recovery_offer(autosave_path) -> dict | None:
+        """What an autosave file left by a crash holds (``saved``, ``data``, ``session``),
+        or None when there is none or it is unreadable."""
+        path = Path(autosave_path)
+        try:
+            doc = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, json.JSONDecodeError):
+            return None
+        if not isinstance(doc, dict) or doc.get("format") != FORMAT:
+            return None
+        data = doc.get("data") or {}
+        return {"saved": doc.get("saved"), "data": data.get("path"),
+                "session": doc.get("autosave_of"), "path": str(path)}
+
+    def recover(self) -> bool:
+        """Open the autosave copy as the current (unsaved) workspace."""
+        if self.autosave_path is None or not self.autosave_path.exists():
+            return False
+        return self.open_session(self.autosave_path, recovered=True)
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    try:
+        tmp.write_text(text, encoding="utf-8")
+        os.replace(tmp, path)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+
+
+def _read_session(path: Path) -> tuple[dict, list[str]]:
+    """Parse and validate a session file; return field values and warnings."""
+    from discovery.data import read_table
+
+    label = str(path)
+
+    def fail(what):
+        raise ResultFormatError(f"{label}: {what}")
+
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        fail("session file not found; check the path")
+    except IsADirectoryError:
+        fail("is a folder, not a session file; choose a .edgewise file")
+    except (OSError, UnicodeDecodeError) as err:
+        fail(f"cannot be read ({getattr(err, 'strerror', None) or err}); choose a .edgewise "
+             "file")
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as err:
+        fail(f"not a session file (invalid JSON at line {err.lineno}: {err.msg}); choose a "
+             ".edgewise file saved by Edgewise")
+    if not isinstance(doc, dict) or doc.get("format") != FORMAT:
+        fail(f"not an Edgewise session ('format' is not {FORMAT!r}); choose a .edgewise "
+             "file saved by Edgewise")
+    if doc.get("version") != VERSION:
+        fail(f"session version {doc.get('version')!r} is not supported (this Edgewise reads "
+             f"version {VERSION}); open it with the Edgewise that saved it")
+    for name, kind in (("settings", dict), ("knowledge", dict), ("included", list),
+                       ("positions", dict)):
+        if not isinstance(doc.get(name), kind):
+            fail(f"'{name}' is missing or not a {'table' if kind is dict else 'list'}; the "
+                 "file is damaged — open an older copy or start again from the data")
+    try:
+        settings = SearchSettings.from_dict(doc["settings"])
+    except (SettingsError, TypeError) as err:
+        fail(f"settings: {err}")
+    knowledge = Knowledge.from_dict(doc["knowledge"], source=label)
+    result = None
+    if doc.get("result") is not None:
+        result = SearchResult.from_dict(doc["result"], source=label)
+    positions = {}
+    for name, xy in doc["positions"].items():
+        if not (isinstance(xy, list) and len(xy) == 2
+                and all(isinstance(c, (int, float)) and not isinstance(c, bool)
+                        and np.isfinite(c) for c in xy)):
+            fail(f"position of {name!r} must be two numbers [x, y]; got {xy!r}")
+        positions[name] = (float(xy[0]), float(xy[1]))
+    included = doc["included"]
+    if not all(isinstance(v, str) for v in included):
+        fail("'included' must be a list of variable names")
+    warns = []
+    dataset = None
+    data_path = None
+    stale = False
+    data = doc.get("data")
+    if data is not None:
+        if not isinstance(data, dict) or not isinstance(data.get("path"), str):
+            fail("'data' must be a table with the data file's 'path'")
+        candidates = []
+        if isinstance(data.get("relative"), str):
+            candidates.append(path.resolve().parent / data["relative"])
+        candidates.append(Path(data["path"]))
+        found = next((c for c in candidates if c.is_file()), None)
+        data_path = str((found or Path(data["path"])).resolve())
+        if found is None:
+            warns.append(f"data file {data['path']} not found; the saved result is shown, "
+                         "but to run again open the data (File → Open data)")
+        else:
+            try:
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    dataset = read_table(found, missing="test-wise")
+            except DiscoveryError as err:
+                warns.append(f"{err} — the saved result is shown without data")
+            else:
+                if data.get("sha256") and data["sha256"] != dataset.sha256:
+                    stale = True
+                    warns.append(f"{found} changed since the session was saved (its SHA-256 "
+                                 "fingerprint differs); the saved result is marked stale — "
+                                 "run again to use the current data")
+    variables = (tuple(dataset.variables) if dataset is not None
+                 else tuple(result.variables) if result is not None else ())
+    unknown = sorted(set(included) - set(variables)) if variables else []
+    if unknown and dataset is not None:
+        warns.append(f"included variable(s) {unknown} are not in the data any more; left out")
+    included = tuple(v for v in variables if v in set(included)) if variables else ()
+    if variables:
+        try:
+            knowledge.check_variables(variables, source=f"{label}: knowledge")
+        except KnowledgeError as err:
+            if dataset is None:
+                raise
+            warns.append(f"{err} — those statements are dropped")
+            knowledge = restrict_knowledge(knowledge, variables)
+    result_key = None
+    if result is not None:
+        inputs = doc.get("result_inputs")
+        if isinstance(inputs, dict):
+            try:
+                result_key = (SearchSettings.from_dict(inputs["settings"]),
+                              Knowledge.from_dict(inputs["knowledge"], source=label),
+                              tuple(inputs["included"]))
+            except (KeyError, TypeError, SettingsError) as err:
+                fail(f"'result_inputs' is damaged ({err})")
+        else:
+            result_key = (result.settings, result.knowledge, tuple(result.variables))
+    selection = tuple(v for v in doc.get("selection", ()) if isinstance(v, str)
+                      and v in variables)[:2]
+    return ({"data_path": data_path, "dataset": dataset, "included": included,
+             "settings": settings, "knowledge": knowledge, "result": result,
+             "positions": {k: v for k, v in positions.items() if k in variables},
+             "overlay": bool(doc.get("overlay", True)), "selection": selection,
+             "stale": stale, "result_key": result_key,
+             "session_path": doc.get("autosave_of")}, warns)
