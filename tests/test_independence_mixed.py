@@ -146,8 +146,10 @@ def test_auto_routes_by_kind_and_reports():
         make_test("g-squared", f[["d", "e"]]).test("d", "e").pvalue)
     notes = test.describe_tests([("a", "b", ()), ("b", "c", ()), ("a", "d", ("b",))])
     joined = "\n".join(notes)
-    assert "a — b: fisher-z ×1" in joined and "b — c: kci ×1" in joined
-    assert "normality rejected for c" in joined and "a — d: mixed ×1" in joined
+    assert "auto: a — b tested by fisher-z (fisher-z: every column continuous" in joined
+    assert "auto: b — c tested by kci" in joined and "auto: a — d tested by mixed" in joined
+    assert "rejected for c; not rejected for a, b" in joined
+    assert "auto: 3 tests: 1 fisher-z, 1 kci, 1 mixed" in joined
 
 
 def test_search_with_mixed_and_auto():

@@ -34,7 +34,7 @@ References
 
 from __future__ import annotations
 
-from collections import Counter, defaultdict
+from collections import defaultdict
 
 import numpy as np
 from scipy import stats
@@ -197,39 +197,52 @@ class AutoTest(IndependenceTest):
         Returns
         -------
         list of str
-            One line per group of pairs that the same tests decided for the same reasons,
-            followed by the notes of the kernel and G² tests (approximation used, tests
-            skipped by the minimum-rows rule).
+            The normality verdicts; one line per group of pairs tested by the same tests
+            (with the reason for each test); the count of tests per test; then the notes of
+            the kernel and G² tests (approximation used, tests skipped by the rows rule).
         """
         index = {v: i for i, v in enumerate(self.variables)}
-        per_pair: dict[tuple[str, str], Counter] = defaultdict(Counter)
+        per_pair: dict[tuple[str, str], set] = defaultdict(set)
         routed: dict[str, list] = defaultdict(list)
         for row in tests:
             x, y, given = row[0], row[1], tuple(row[2])
             a, b = sorted((index[x], index[y]))
-            s = tuple(index[g] for g in given)
-            name, reason = self.choose(a, b, s)
-            key = (self.variables[a], self.variables[b])
-            per_pair[key][(name, _general(reason, key, given))] += 1
+            name = self.choose(a, b, tuple(index[g] for g in given))[0]
+            per_pair[(self.variables[a], self.variables[b])].add(name)
             routed[name].append((x, y, given))
-        groups: dict[tuple, list[str]] = defaultdict(list)
-        for pair, counter in per_pair.items():
-            groups[tuple(sorted(counter.items()))].append(f"{pair[0]} — {pair[1]}")
+        if not routed:
+            return []
         notes = []
-        for choice, pairs in sorted(groups.items(), key=lambda g: (-len(g[1]), g[0])):
-            what = "; ".join(f"{name} ×{count} ({reason})" for (name, reason), count in choice)
-            notes.append(f"auto: {', '.join(sorted(pairs))}: {what}")
+        if self.normality:
+            bad = [c for c in self.normality if not self._normal(c)]
+            good = [c for c in self.normality if self._normal(c)]
+            notes.append(f"auto: normality (D'Agostino–Pearson, level {self.normality_alpha:g}) "
+                         f"rejected for {', '.join(bad) or 'no column'}; not rejected for "
+                         f"{', '.join(good) or 'no column'}")
+        groups: dict[tuple, list[str]] = defaultdict(list)
+        for pair, names in per_pair.items():
+            groups[tuple(sorted(names))].append(f"{pair[0]} — {pair[1]}")
+        for names, pairs in sorted(groups.items(), key=lambda g: (-len(g[1]), g[0])):
+            why = "; ".join(f"{n}: {WHY[n]}" for n in names)
+            notes.append(f"auto: {', '.join(sorted(pairs))} tested by {' and '.join(names)} "
+                         f"({why})")
+        counts = ", ".join(f"{len(rows)} {name}" for name, rows in
+                           sorted(routed.items(), key=lambda kv: -len(kv[1])))
+        notes.append(f"auto: {sum(len(r) for r in routed.values())} tests: {counts}")
         for name in ("kci", "g-squared"):
             if routed.get(name):
-                test, local = self._tests[name]
+                test, _ = self._tests[name]
                 notes.extend(test.describe_tests(routed[name]))
         return notes
 
 
-def _general(reason: str, pair, given) -> str:
-    """The reason without the pair's own names (they head the note already)."""
-    return reason.replace(f"{pair[0]} and {pair[1]} and the conditioning set ", "all ") \
-                 .replace(f"{pair[0]} and {pair[1]} ", "both ")
+#: Why each test is chosen, in a few words (the rules of :meth:`AutoTest.choose`).
+WHY = {
+    "g-squared": "every column of the test discrete",
+    "fisher-z": "every column continuous, normality not rejected",
+    "kci": "every column continuous, normality rejected for at least one",
+    "mixed": "continuous and discrete columns together",
+}
 
 
 def make_auto(frame, *, missing="drop", **options) -> AutoTest:
