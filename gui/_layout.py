@@ -72,6 +72,8 @@ def layered_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]],
         columns.append(rest)
     neighbours: dict[str, set] = {v: set() for v in variables}
     for a, b in edges:
+        if a not in neighbours or b not in neighbours:
+            continue
         neighbours[a].add(b)
         neighbours[b].add(a)
     row_of: dict[str, float] = {}
@@ -123,11 +125,17 @@ def force_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]], *,
     return {v: (float(x), float(y)) for v, (x, y) in zip(variables, xy)}
 
 
-def _separate(xy: np.ndarray, *, rounds: int = 30) -> np.ndarray:
-    """Push apart node centres closer than the minimum gaps (axis-aligned boxes)."""
-    gap = np.array([MIN_GAP_X * 0.8, MIN_GAP_Y * 0.8])
+def _separate(xy: np.ndarray, *, rounds: int = 200) -> np.ndarray:
+    """Push apart node centres closer than the minimum gaps (axis-aligned boxes).
+
+    Each overlapping pair moves apart along the axis where it overlaps least (relative to
+    the gap), each node by half the overlap; repeated until no pair overlaps.
+    """
+    gap = np.array([MIN_GAP_X * 0.85, MIN_GAP_Y * 0.85])
+    xy = xy.copy()
     n = len(xy)
     rng = np.random.default_rng(0)
+    xy += rng.normal(scale=1e-3, size=xy.shape)  # break exact ties
     for _ in range(rounds):
         d = xy[:, None, :] - xy[None, :, :]
         overlap = gap - np.abs(d)
@@ -135,15 +143,14 @@ def _separate(xy: np.ndarray, *, rounds: int = 30) -> np.ndarray:
         np.fill_diagonal(hit, False)
         if not hit.any():
             break
-        # move along the axis of least overlap, half each
-        along_x = overlap[..., 0] * gap[1] < overlap[..., 1] * gap[0]
-        sign = np.sign(d)
-        sign[sign == 0] = 1.0
-        push = np.zeros_like(d)
-        push[..., 0] = np.where(hit & along_x, overlap[..., 0] * sign[..., 0] / 2, 0)
-        push[..., 1] = np.where(hit & ~along_x, overlap[..., 1] * sign[..., 1] / 2, 0)
-        xy = xy + push.sum(axis=1) / np.maximum(1, hit.sum(axis=1))[:, None] \
-            + rng.normal(scale=0.5, size=(n, 2)) * hit.any(axis=1)[:, None]
+        along_x = overlap[..., 0] / gap[0] < overlap[..., 1] / gap[1]
+        sign = np.where(d >= 0, 1.0, -1.0)
+        push = np.zeros((n, 2))
+        push[:, 0] = np.where(hit & along_x, (overlap[..., 0] + 1.0) * sign[..., 0] / 2,
+                              0).sum(axis=1)
+        push[:, 1] = np.where(hit & ~along_x, (overlap[..., 1] + 1.0) * sign[..., 1] / 2,
+                              0).sum(axis=1)
+        xy += push
     return xy
 
 

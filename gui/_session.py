@@ -374,6 +374,7 @@ class Session:
             "session_path": None,
         })
         self.update({"dirty": False})
+        object.__setattr__(self, "_autosaved_generation", self._generation)
         self.append_log(f"opened {label}: {dataset.rows_read} rows, "
                         f"{len(dataset.variables)} usable columns of {len(dataset.kinds)}"
                         f" (SHA-256 {dataset.sha256[:12]})")

@@ -1,0 +1,29 @@
+"""Invented tables for the window's tests."""
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+ROOT = Path(__file__).resolve().parents[2]
+EXAMPLE = ROOT / "example_sets" / "greenhouse"
+
+
+def collider_frame(n=800, seed=3) -> pd.DataFrame:
+    """a → c ← b, c → d: a collider and a chain, linear-Gaussian (invented test data)."""
+    rng = np.random.default_rng(seed)
+    a = rng.normal(size=n)
+    b = rng.normal(size=n)
+    c = 0.9 * a + 0.9 * b + rng.normal(size=n)
+    d = 0.9 * c + rng.normal(size=n)
+    e = rng.normal(size=n)
+    return pd.DataFrame({"a": a, "b": b, "c": c, "d": d, "e": e})
+
+
+def latent_frame(p=40, n=300, seed=5) -> pd.DataFrame:
+    """Every column driven by one unmeasured factor: no pair separates, so the search grows
+    level after level (a long run for stop tests; invented data)."""
+    rng = np.random.default_rng(seed)
+    factor = rng.normal(size=n)
+    cols = {f"v{i:02d}": 0.8 * factor + rng.normal(scale=0.6, size=n) for i in range(p)}
+    return pd.DataFrame(cols)
