@@ -148,6 +148,7 @@ class MainWindow(QMainWindow):
         ev.overlay.connect(self._on_overlay)
         ev.selection.connect(self._on_selection)
         ev.session_path.connect(self._update_title)
+        ev.session_path.connect(self._on_session_path)
         ev.dirty.connect(self._update_title)
         ev.data_path.connect(self._update_title)
         ev.dataset.connect(self._on_dataset)
@@ -453,7 +454,7 @@ class MainWindow(QMainWindow):
 
     def _on_status(self, status):
         running = status in ("running", "stopping")
-        self.run_button.setEnabled(not running)
+        self.run_button.setEnabled(not running and self.session.dataset is not None)
         self.act_run.setEnabled(not running)
         self.stop_button.setEnabled(status == "running")
         self.act_stop.setEnabled(status == "running")
@@ -528,12 +529,16 @@ class MainWindow(QMainWindow):
             act.setEnabled(pair)
 
     def _on_dataset(self, dataset):
-        if dataset is not None:
-            self.depth_box.setMaximum(max(1, len(dataset.variables) - 2))
+        self.run_button.setEnabled(dataset is not None
+                                   and self.session.status not in ("running", "stopping"))
 
     def _on_result(self, result):
         if result is not None:
             self.session.autosave()
+
+    def _on_session_path(self, path):
+        if path and Path(path).exists():
+            self.add_recent(path)
 
     def _update_title(self, _=None):
         s = self.session
@@ -664,10 +669,7 @@ class MainWindow(QMainWindow):
                                               "Edgewise session (*.edgewise)")
         if not path:
             return False
-        ok = self.session.save_session(path)
-        if ok:
-            self.add_recent(self.session.session_path)
-        return ok
+        return self.session.save_session(path)
 
     def export(self, kind: str, path=None):
         label, filt, suffix = _export.FORMATS[kind]
