@@ -646,8 +646,10 @@ def draw_result(result: SearchResult, path=None, *, positions=None, ax=None, tit
     font_pt = _FONT_PER_UNIT * unit
     line_w = float(np.clip(0.034 * unit, 0.5, 1.4))
     _draw_bands(ax, bands, font_pt)
+    marks = [_bezier(p, c, q, (t0 + t1) / 2) for (p, c, q, t0, t1), e in zip(routes, result.edges)
+             if e.locked and show_knowledge]
     for k, ((_, _, where), route) in enumerate(zip(forbidden, forbidden_routes)):
-        _draw_forbidden(ax, k, route, where, line_w)
+        marks.append(_draw_forbidden(ax, k, route, where, line_w, marks))
     for i, (e, route) in enumerate(zip(result.edges, routes)):
         _draw_edge(ax, i, e, route, line_w, show_knowledge)
     for k, v in enumerate(names):
@@ -778,11 +780,19 @@ def _forbidden_pairs(result, index) -> list[tuple[int, int, float]]:
     return [(index[a], index[b], w) for a, b, w in pairs if a in index and b in index]
 
 
-def _draw_forbidden(ax, k, route, where, line_w):
+def _draw_forbidden(ax, k, route, where, line_w, marks):
+    """Draw a forbidden pair; its cross keeps clear of the other marks (locked bars,
+    crosses), which matters where two lines cross. Returns the cross's centre."""
     p, c, q, t0, t1 = route
     faint = matplotlib.colors.to_rgba(SLATE, 0.42)
     pts = _bezier(p, c, q, np.linspace(t0, t1, 32))
-    mid = _bezier(p, c, q, t0 + (t1 - t0) * where)
+    for shift in (0.0, -0.12, 0.12, -0.24, 0.24):
+        at = min(max(where + shift, 0.15), 0.85)
+        mid = _bezier(p, c, q, t0 + (t1 - t0) * at)
+        if all(np.hypot(*(mid - m)) >= 0.65 for m in marks):
+            break
+    else:
+        mid = _bezier(p, c, q, t0 + (t1 - t0) * where)
     s = 0.075
     cross = np.array([mid + [-s, -s], mid + [s, s], [np.nan, np.nan],
                       mid + [-s, s], mid + [s, -s]])
@@ -791,6 +801,7 @@ def _draw_forbidden(ax, k, route, where, line_w):
                        gid=f"forbidden-{k}"))
     ax.add_line(Line2D(cross[:, 0], cross[:, 1], color=faint, linewidth=line_w,
                        solid_capstyle="round", zorder=1, gid=f"forbidden-{k}-cross"))
+    return mid
 
 
 def _draw_footer(fig, ax, result, show_knowledge):
