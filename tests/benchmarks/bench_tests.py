@@ -1,0 +1,175 @@
+"""Benchmarks of the kernel and G² independence tests (figures for docs/benchmarks.md).
+
+Measured, each as the best of a few runs on fresh test objects (no cached kernels):
+
+- exact KCI, one conditional test (one conditioning variable), n = 1,000;
+- low-rank KCI at n = 10,000: one test from cold (features computed), and the mean cost per
+  test over a batch of 60 tests on 8 variables (features shared, as in a search);
+- the speed-up of low-rank over exact at n = 2,000 (one test from cold, both);
+- a kernel search on the invented 10-variable nonlinear model (tests/nonlinear_model.py),
+  n = 2,000, on 2 local processes, with its skeleton F1;
+- a G² search on 20 discrete variables (2–4 levels, random DAG), n = 20,000.
+
+Run ``python tests/benchmarks/bench_tests.py [--quick] [--write docs/benchmarks.md]``;
+``edgewise bench`` calls :func:`main` too. Speed is never asserted in the unit tests.
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import sys
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+sys.path.insert(0, str(HERE.parent.parent))
+
+SECTION = "## Independence tests"
+
+
+def _best(fn, repeat=3):
+    best, out = float("inf"), None
+    for _ in range(repeat):
+        t = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t)
+    return best, out
+
+
+def _chain(n, seed):
+    rng = np.random.default_rng(seed)
+    x = rng.uniform(-2, 2, n)
+    z = np.sin(1.5 * x) + 0.4 * rng.normal(size=n)
+    y = z ** 2 + 0.4 * rng.normal(size=n)
+    return pd.DataFrame({"x": x, "y": y, "z": z})
+
+
+def _wide(n, columns, seed):
+    rng = np.random.default_rng(seed)
+    base = rng.uniform(-2, 2, (n, columns))
+    for j in range(1, columns):
+        base[:, j] += np.sin(1.5 * base[:, j - 1])
+    return pd.DataFrame(base, columns=[f"c{j}" for j in range(columns)])
+
+
+def _discrete(n, n_vars, seed):
+    """A random DAG over discrete variables (2–4 levels), logistic-style conditional tables."""
+    rng = np.random.default_rng(seed)
+    levels = rng.integers(2, 5, n_vars)
+    data = np.zeros((n, n_vars), dtype=int)
+    for j in range(n_vars):
+        parents = [i for i in range(max(0, j - 4), j) if rng.random() < 0.35]
+        score = np.zeros((n, levels[j]))
+        for i in parents:
+            weights = rng.normal(0, 1.2, (levels[i], levels[j]))
+            score += weights[data[:, i]]
+        prob = np.exp(score)
+        prob /= prob.sum(axis=1, keepdims=True)
+        cum = prob.cumsum(axis=1)
+        data[:, j] = (rng.random((n, 1)) > cum).sum(axis=1).clip(0, levels[j] - 1)
+    return pd.DataFrame(data, columns=[f"d{j:02d}" for j in range(n_vars)])
+
+
+def kernel_figures(quick: bool = False) -> dict:
+    from discovery.independence import KernelCI
+    n_exact, n_low, n_speed = (300, 2000, 600) if quick else (1000, 10000, 2000)
+    out = {}
+    frame = _chain(n_exact, 1)
+    t, _ = _best(lambda: KernelCI(frame, lowrank_above=10 ** 9).pvalues([(0, 1, (2,))]))
+    out[f"kci_exact_one_test_n{n_exact}_s"] = t
+    frame = _chain(n_low, 2)
+    t, _ = _best(lambda: KernelCI(frame, lowrank_above=0).pvalues([(0, 1, (2,))]))
+    out[f"kci_lowrank_one_test_cold_n{n_low}_ms"] = 1e3 * t
+    wide = _wide(n_low, 8, 3)
+    rng = np.random.default_rng(4)
+    batch = []
+    while len(batch) < 60:
+        cols = rng.choice(8, size=2 + int(rng.integers(1, 3)), replace=False)
+        batch.append((int(min(cols[:2])), int(max(cols[:2])), tuple(sorted(int(c) for c in
+                                                                          cols[2:]))))
+    t, _ = _best(lambda: KernelCI(wide, lowrank_above=0).pvalues(batch), repeat=2)
+    out[f"kci_lowrank_per_test_in_batch_n{n_low}_ms"] = 1e3 * t / len(batch)
+    frame = _chain(n_speed, 5)
+    exact, _ = _best(lambda: KernelCI(frame, lowrank_above=10 ** 9).pvalues([(0, 1, (2,))]),
+                     repeat=2)
+    low, _ = _best(lambda: KernelCI(frame, lowrank_above=0).pvalues([(0, 1, (2,))]), repeat=5)
+    out[f"kci_speedup_lowrank_vs_exact_n{n_speed}"] = exact / low
+    return out
+
+
+def search_figures(quick: bool = False, jobs: int = 2) -> dict:
+    import networkx as nx
+    from discovery import discover
+    from discovery.executor import make_executor
+    from discovery.metrics import skeleton_scores
+    from nonlinear_model import dag, sample
+    n_kernel, n_g2 = (600, 3000) if quick else (2000, 20000)
+    out = {}
+    frame = sample(n_kernel, seed=1)
+    with make_executor(jobs) as executor:
+        t = time.perf_counter()
+        result = discover(frame, test="kci", executor=executor)
+        out[f"kci_search_10_vars_n{n_kernel}_jobs{jobs}_s"] = time.perf_counter() - t
+    out["kci_search_tests"] = int(result.counts["tests"])
+    out["kci_search_skeleton_f1"] = skeleton_scores(result.to_networkx(), dag()).f1
+    data = _discrete(n_g2, 20, 6)
+    t = time.perf_counter()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = discover(data, test="g-squared")
+    out[f"g2_search_20_vars_n{n_g2}_s"] = time.perf_counter() - t
+    out["g2_search_tests"] = int(result.counts["tests"])
+    _ = nx
+    return out
+
+
+def format_section(figures: dict, machine: str, quick: bool) -> str:
+    lines = [SECTION, "",
+             "Kernel (HSIC / KCI) and G² tests; `python tests/benchmarks/bench_tests.py` "
+             "(also run by `edgewise bench`). Best of a few runs, fresh test objects.", "",
+             "| figure | value |", "|---|---|"]
+    for key, value in figures.items():
+        shown = f"{value:.4g}" if isinstance(value, float) else str(value)
+        lines.append(f"| `{key}` | {shown} |")
+    lines += ["", f"Machine: {machine}. Measured {time.strftime('%Y-%m-%d')}"
+              + (" (quick sizes)" if quick else "") + ".", ""]
+    return "\n".join(lines)
+
+
+def write_section(path: Path, section: str) -> None:
+    """Replace the '## Independence tests' section of ``path`` (or append it)."""
+    text = path.read_text(encoding="utf-8") if path.exists() else "# Benchmarks\n\n"
+    pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
+    if pattern.search(text):
+        text = pattern.sub(lambda m: section + "\n", text, count=1)
+    else:
+        text = text.rstrip("\n") + "\n\n" + section
+    path.write_text(text, encoding="utf-8")
+
+
+def main(argv=None) -> dict:
+    """Run the benchmarks, print the figures, return them as a dict."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke run")
+    parser.add_argument("--jobs", type=int, default=2, help="processes for the search")
+    parser.add_argument("--write", metavar="FILE.md", help="update this file's section")
+    args = parser.parse_args(argv)
+    figures = kernel_figures(args.quick)
+    figures.update(search_figures(args.quick, args.jobs))
+    for key, value in figures.items():
+        print(f"{key}: {value:.4g}" if isinstance(value, float) else f"{key}: {value}")
+    if args.write:
+        from discovery.bench import machine_description
+        write_section(Path(args.write), format_section(figures, machine_description(),
+                                                        args.quick))
+    return figures
+
+
+if __name__ == "__main__":
+    main()
