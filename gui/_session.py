@@ -247,6 +247,9 @@ class Session:
         object.__setattr__(self, "_result_key", None)
         object.__setattr__(self, "_generation", 0)
         object.__setattr__(self, "_autosaved_generation", 0)
+        # True while the canvas shows the grid of a freshly opened table: the first result
+        # then lays the canvas out around its edges (later results keep the layout)
+        object.__setattr__(self, "_auto_layout", True)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -366,6 +369,7 @@ class Session:
         self._reset_history()
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_result_key", None)
+        object.__setattr__(self, "_auto_layout", True)
         self.update({
             "data_path": str(Path(path).resolve()), "dataset": dataset,
             "included": dataset.variables, "knowledge": knowledge, "result": None,
@@ -558,6 +562,7 @@ class Session:
         """Record dragged nodes' new centres (one undoable step)."""
         positions = dict(self.positions)
         positions.update({k: (float(x), float(y)) for k, (x, y) in moved.items()})
+        object.__setattr__(self, "_auto_layout", False)
         self._edit({"positions": positions}, label)
 
     def arrange(self) -> None:
@@ -691,7 +696,11 @@ class Session:
         self.update({"result": result, "status": "done", "progress": None})
         keep = tuple(v for v in self.selection if v in result.variables)
         self.update({"selection": keep if len(keep) == len(self.selection) else ()})
-        self._ensure_positions()
+        if self._auto_layout:  # the first diagram replaces the grid of a fresh table
+            object.__setattr__(self, "_auto_layout", False)
+            self.update({"positions": self._arranged()})
+        else:
+            self._ensure_positions()
         c = result.counts
         elapsed = time.perf_counter() - job.started
         self.append_log(
@@ -806,6 +815,7 @@ class Session:
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_job", None)
         object.__setattr__(self, "_result_key", state.pop("result_key"))
+        object.__setattr__(self, "_auto_layout", not state["positions"])
         session_path = state.pop("session_path")
         state.update({"status": "done" if state["result"] is not None else "idle",
                       "progress": None,

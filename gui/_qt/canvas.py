@@ -13,6 +13,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPainter,
                            QPainterPath, QPainterPathStroker, QPen, QPolygonF)
@@ -72,14 +74,20 @@ def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: fl
 
 def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
               forbidden_heads=(), hover: bool = False, selected: bool = False,
-              scale: float = 1.0, faded: bool = False):
+              scale: float = 1.0, faded: bool = False, control: QPointF | None = None):
     """Draw one mark from a to b.
 
     ``kind`` is ``directed`` (a → b), ``undirected``, ``contested``, ``forbidden`` (overlay),
     ``pending-lock`` (a locked pair the current diagram does not have yet) or ``locked``
     (legend sample: an undirected edge with the lock bar). ``forbidden_heads`` lists the ends
-    ("a" or "b") whose arrowhead is forbidden; each gets a small cross.
+    ("a" or "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the
+    edge is a quadratic curve through that control point (used to bend around a node).
     """
+    if control is not None:
+        _draw_curved(painter, a, b, control, kind, locked=locked,
+                     forbidden_heads=forbidden_heads, hover=hover, selected=selected,
+                     scale=scale, faded=faded)
+        return
     ux, uy, length = _unit(a, b)
     width = (2.6 if selected else 1.9 if hover else 1.5) * scale
     painter.save()
@@ -122,6 +130,114 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: b
         at = QPointF(tip.x() + sx * 20 * scale, tip.y() + sy * 20 * scale)
         _cross(painter, at, style.TEAL, scale, 3.5)
     painter.restore()
+
+
+def _draw_curved(painter, a, b, c, kind, *, locked, forbidden_heads, hover, selected, scale,
+                 faded):
+    path = QPainterPath(a)
+    path.quadTo(c, b)
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    color = style.CONTESTED if kind == "contested" else style.SLATE
+    painter.save()
+    painter.setRenderHint(QPainter.Antialiasing)
+    painter.setBrush(Qt.NoBrush)
+    if faded:
+        painter.setOpacity(0.45)
+    if kind == "forbidden":
+        pen = QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap)
+    elif kind == "pending-lock":
+        pen = QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap)
+    else:
+        if selected:
+            painter.setPen(QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine,
+                                Qt.RoundCap))
+            painter.drawPath(path)
+        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
+                   Qt.FlatCap)
+        if kind == "contested":
+            pen.setDashPattern([5, 3])
+    painter.setPen(pen)
+    painter.drawPath(path)
+    mid = path.pointAtPercent(0.5)
+    tangent_a, tangent_b = QPointF(c - a), QPointF(b - c)
+    if kind == "directed":
+        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
+        _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
+    elif kind == "contested":
+        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
+        _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
+        ux, uy, _ = _unit(QPointF(0, 0), tangent_a)
+        _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
+    along = QPointF(b - a)
+    span = QPointF(mid.x() - along.x() * 0.05, mid.y() - along.y() * 0.05), \
+        QPointF(mid.x() + along.x() * 0.05, mid.y() + along.y() * 0.05)
+    if kind == "forbidden":
+        _cross(painter, mid, style.FORBIDDEN, scale)
+    if locked or kind in ("locked", "pending-lock"):
+        _double_bar(painter, *span, scale)
+    for end in forbidden_heads:
+        t = 0.85 if end == "b" else 0.15
+        _cross(painter, path.pointAtPercent(t), style.TEAL, scale, 3.5)
+    painter.restore()
+
+
+def _crosses_box(p: QPointF, q: QPointF, box: QRectF) -> bool:
+    """Whether the segment p–q passes through ``box`` (Liang–Barsky clipping)."""
+    dx, dy = q.x() - p.x(), q.y() - p.y()
+    t0, t1 = 0.0, 1.0
+    for edge_p, edge_q in ((-dx, p.x() - box.left()), (dx, box.right() - p.x()),
+                           (-dy, p.y() - box.top()), (dy, box.bottom() - p.y())):
+        if edge_p == 0:
+            if edge_q < 0:
+                return False
+            continue
+        t = edge_q / edge_p
+        if edge_p < 0:
+            t0 = max(t0, t)
+        else:
+            t1 = min(t1, t)
+        if t0 > t1:
+            return False
+    return True
+
+
+def _bend(canvas, a: "NodeItem", b: "NodeItem") -> QPointF | None:
+    """A control point that takes the edge a–b around the nodes its straight line crosses
+    (segment-box tests for every node at once, Liang–Barsky clipping in numpy)."""
+    ca, cb = a.pos(), b.pos()
+    ux, uy, length = _unit(ca, cb)
+    if length < 1:
+        return None
+    names, centres, halves = canvas.node_arrays()
+    px, py = ca.x(), ca.y()
+    dx, dy = cb.x() - px, cb.y() - py
+    lo = centres - halves - 6.0
+    hi = centres + halves + 6.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tx1, tx2 = (lo[:, 0] - px) / dx, (hi[:, 0] - px) / dx
+        ty1, ty2 = (lo[:, 1] - py) / dy, (hi[:, 1] - py) / dy
+    if dx == 0:
+        inside = (px >= lo[:, 0]) & (px <= hi[:, 0])
+        tx1 = np.where(inside, -np.inf, np.inf)
+        tx2 = np.where(inside, np.inf, -np.inf)
+    if dy == 0:
+        inside = (py >= lo[:, 1]) & (py <= hi[:, 1])
+        ty1 = np.where(inside, -np.inf, np.inf)
+        ty2 = np.where(inside, np.inf, -np.inf)
+    t_in = np.maximum(np.maximum(np.minimum(tx1, tx2), np.minimum(ty1, ty2)), 0.0)
+    t_out = np.minimum(np.minimum(np.maximum(tx1, tx2), np.maximum(ty1, ty2)), 1.0)
+    hit = t_in <= t_out
+    hit[[canvas.node_index[a.name], canvas.node_index[b.name]]] = False
+    if not hit.any():
+        return None
+    rel = centres[hit] - np.array([px, py])
+    side = rel[:, 0] * -uy + rel[:, 1] * ux  # signed distance of each crossed node
+    need = NODE_H / 2 + 14 + np.abs(side) + halves[hit, 0] * abs(uy)
+    k = int(np.argmax(need))
+    sign = -1.0 if side[k] > 0 else 1.0
+    bulge = min(2 * float(need[k]), 0.6 * length)  # a quadratic reaches half its offset
+    mid = QPointF((ca.x() + cb.x()) / 2, (ca.y() + cb.y()) / 2)
+    return QPointF(mid.x() - uy * bulge * sign, mid.y() + ux * bulge * sign)
 
 
 def _clip(center: QPointF, toward: QPointF, hw: float, hh: float, pad: float = 3.0) -> QPointF:
@@ -197,6 +313,7 @@ class NodeItem(QGraphicsItem):
 
     def itemChange(self, change, value):
         if change == QGraphicsItem.ItemPositionHasChanged:
+            self.canvas._arrays = None
             for edge in self.edges:
                 edge.update_geometry()
             self.canvas._node_moved(self)
@@ -241,6 +358,7 @@ class EdgeItem(QGraphicsItem):
         self.selected = False
         self.p1 = QPointF()
         self.p2 = QPointF()
+        self.control = None
         self._shape = QPainterPath()
         self.setAcceptHoverEvents(True)
         self.setZValue(5)
@@ -265,16 +383,25 @@ class EdgeItem(QGraphicsItem):
     def update_geometry(self):
         self.prepareGeometryChange()
         ca, cb = self.a.pos(), self.b.pos()
-        self.p1 = _clip(ca, cb, *self.a.half)
-        self.p2 = _clip(cb, ca, *self.b.half)
+        self.control = _bend(self.canvas, self.a, self.b)
+        toward_a = self.control if self.control is not None else cb
+        toward_b = self.control if self.control is not None else ca
+        self.p1 = _clip(ca, toward_a, *self.a.half)
+        self.p2 = _clip(cb, toward_b, *self.b.half)
         path = QPainterPath(self.p1)
-        path.lineTo(self.p2)
+        if self.control is None:
+            path.lineTo(self.p2)
+        else:
+            path.quadTo(self.control, self.p2)
         stroker = QPainterPathStroker()
         stroker.setWidth(12)
         self._shape = stroker.createStroke(path)
 
     def boundingRect(self) -> QRectF:
-        return QRectF(self.p1, self.p2).normalized().adjusted(-14, -14, 14, 14)
+        rect = QRectF(self.p1, self.p2).normalized()
+        if self.control is not None:
+            rect = rect.united(QRectF(self.control, self.control))
+        return rect.adjusted(-14, -14, 14, 14)
 
     def shape(self) -> QPainterPath:
         return self._shape
@@ -283,7 +410,8 @@ class EdgeItem(QGraphicsItem):
         overlay = self.canvas.session.overlay
         draw_edge(painter, self.p1, self.p2, self.kind, locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
-                  hover=self.hover, selected=self.selected, faded=self.faded)
+                  hover=self.hover, selected=self.selected, faded=self.faded,
+                  control=self.control)
 
     def hoverEnterEvent(self, event):
         self.hover = True
@@ -441,17 +569,21 @@ class GraphCanvas(QGraphicsView):
         self.overlays: list[OverlayItem] = []
         self.bands: list[StageBand] = []
         self._press_pos = None
+        self._arrays = None
+        self.node_index = {}
         self._refreshing = False
         self._fit_pending = True
 
-        self.banner = QLabel(self.viewport())
+        # overlays are children of the view, not of its viewport: the viewport scrolls its
+        # children along with the scene
+        self.banner = QLabel(self)
         self.banner.setObjectName("staleBanner")
         self.banner.setWordWrap(True)
         self.banner.hide()
-        self.hint = QLabel(self.viewport())
+        self.hint = QLabel(self)
         self.hint.setObjectName("canvasHint")
         self.hint.setAlignment(Qt.AlignCenter)
-        self.legend = Legend(self.viewport())
+        self.legend = Legend(self)
 
         ev = session.events
         ev.result.connect(self._on_structure)
@@ -464,6 +596,18 @@ class GraphCanvas(QGraphicsView):
         ev.stale.connect(self._on_banner)
         ev.status.connect(self._on_banner)
         self._rebuild()
+
+    def node_arrays(self):
+        """Names, centres and half sizes of the nodes as arrays (cached until a node moves)."""
+        if self._arrays is None:
+            names = list(self.nodes)
+            centres = np.array([(n.pos().x(), n.pos().y()) for n in self.nodes.values()],
+                               dtype=float).reshape(-1, 2)
+            halves = np.array([n.half for n in self.nodes.values()],
+                              dtype=float).reshape(-1, 2)
+            self.node_index = {name: i for i, name in enumerate(names)}
+            self._arrays = (names, centres, halves)
+        return self._arrays
 
     # -- test and export helpers -------------------------------------------------------------
     def edge_marks(self) -> dict:
@@ -483,6 +627,7 @@ class GraphCanvas(QGraphicsView):
         try:
             self.scene_.clear()
             self.nodes, self.edges, self.overlays, self.bands = {}, {}, [], []
+            self._arrays = None
             kinds = dict(s.dataset.kinds) if s.dataset is not None else {}
             included = set(s.included) if s.dataset is not None else set(s.variables)
             for name in s.variables:
@@ -571,13 +716,18 @@ class GraphCanvas(QGraphicsView):
 
     def _on_positions(self, positions):
         self._refreshing = True
+        moved = False
         try:
             for name, node in self.nodes.items():
                 xy = positions.get(name)
                 if xy is not None and (node.pos().x(), node.pos().y()) != xy:
                     node.setPos(QPointF(*xy))
+                    moved = True
         finally:
             self._refreshing = False
+        if moved:
+            for item in self.edges.values():  # bends depend on every node's place
+                item.update_geometry()
         self._update_bands()
         self._update_scene_rect()
 
@@ -649,12 +799,15 @@ class GraphCanvas(QGraphicsView):
         self._place_overlays()
 
     def _place_overlays(self):
-        vp = self.viewport()
+        vp = self.viewport().geometry()
         self.banner.setMaximumWidth(max(200, vp.width() - 40))
         self.banner.adjustSize()
-        self.banner.move((vp.width() - self.banner.width()) // 2, 12)
-        self.hint.setGeometry(0, vp.height() // 2 + 40, vp.width(), 30)
-        self.legend.move(10, vp.height() - self.legend.height() - 10)
+        self.banner.move(vp.x() + (vp.width() - self.banner.width()) // 2, vp.y() + 12)
+        top = vp.y() + (56 if self.nodes else vp.height() // 2 + 40)
+        self.hint.setGeometry(vp.x(), top, vp.width(), 30)
+        self.legend.move(vp.x() + 10, vp.y() + vp.height() - self.legend.height() - 10)
+        for w in (self.banner, self.hint, self.legend):
+            w.raise_()
 
     def resizeEvent(self, event):
         super().resizeEvent(event)
@@ -688,6 +841,8 @@ class GraphCanvas(QGraphicsView):
         self._press_pos = None
         now = (node.pos().x(), node.pos().y())
         if now != before:
+            for item in self.edges.values():  # other edges may now bend, or not
+                item.update_geometry()
             self.session.move_nodes({node.name: now}, label=f"Move {node.name}")
 
     def mousePressEvent(self, event):

@@ -426,7 +426,7 @@ class MainWindow(QMainWindow):
         sb.addWidget(self.status_text, 1)
         self.progress_bar = QProgressBar()
         self.progress_bar.setObjectName("runProgress")
-        self.progress_bar.setFixedWidth(220)
+        self.progress_bar.setFixedWidth(300)
         self.progress_bar.setTextVisible(True)
         sb.addPermanentWidget(self.progress_bar)
         self.elapsed_label = QLabel("")
