@@ -132,6 +132,9 @@ class SearchJob:
     cache: PValueCache
     cancel: threading.Event = dataclasses.field(default_factory=threading.Event)
     started: float = dataclasses.field(default_factory=time.perf_counter)
+    #: filled by :meth:`run`: ``positions``, a layout of the result computed off the GUI
+    #: thread (used when the canvas still shows a fresh table's grid)
+    extras: dict = dataclasses.field(default_factory=dict)
 
     def run(self, progress: Callable | None = None) -> tuple[SearchResult, list[str]]:
         """Prepare the data and search; return the result and the warnings raised.
@@ -167,6 +170,10 @@ class SearchJob:
                 collider_rule=self.settings.collider_rule, missing=self.settings.missing,
                 cache=_StoppableCache(self.cache, self.cancel), progress=report,
                 cancel=self.cancel)
+        if not self.cancel.is_set():
+            self.extras["positions"] = _layout.arrange(
+                self.dataset.variables, [(e.source, e.target) for e in result.edges],
+                self.knowledge.stages)
         seen = []
         for w in caught:
             text = str(w.message)
@@ -698,7 +705,10 @@ class Session:
         self.update({"selection": keep if len(keep) == len(self.selection) else ()})
         if self._auto_layout:  # the first diagram replaces the grid of a fresh table
             object.__setattr__(self, "_auto_layout", False)
-            self.update({"positions": self._arranged()})
+            positions = job.extras.get("positions")
+            if positions is None or set(positions) != set(self.variables):
+                positions = self._arranged()
+            self.update({"positions": positions})
         else:
             self._ensure_positions()
         c = result.counts
