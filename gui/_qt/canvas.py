@@ -693,8 +693,10 @@ class GraphCanvas(QGraphicsView):
                   if p not in self.edges]
         for kind, pair in marks:
             a, b = (self.nodes.get(v) for v in sorted(pair))
-            if a is None or b is None or frozenset(pair) in self.edges:
+            if a is None or b is None:
                 continue
+            if kind == "pending-lock" and frozenset(pair) in self.edges:
+                continue  # a forbidden pair still drawn is a stale diagram: mark it anyway
             item = OverlayItem(self, kind, a, b)
             self.scene_.addItem(item)
             self.overlays.append(item)
