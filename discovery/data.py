@@ -709,7 +709,8 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     rows_read = len(table)
     fast = _float_profile(table, names)
     kinds = {n: fast[n][0] if n in fast else column_kind(table[n]) for n in names}
-    missing_share = {n: float(table[n].isna().mean()) for n in names}
+    shares = table.isna().mean()
+    missing_share = {n: float(shares.iloc[i]) for i, n in enumerate(names)}
     levels = {n: fast[n][1] if n in fast else int(table[n].nunique(dropna=True))
               for n in names}
 
@@ -936,8 +937,11 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
         raise _fail(label, f"a search needs at least 2 variables, but {have}{left}; "
                            f"select more columns")
 
+    floats = {c for c in dataset.variables if frame[c].dtype == np.float64}
     if fisher:
         for column in dataset.variables:
+            if column in floats:
+                continue  # float columns hold numbers (or NaN) only
             texts = _text_values(frame[column])
             if texts:
                 shown = ", ".join(repr(v) for v in texts[:2]) + (", ..." if len(texts) > 2 else "")
@@ -951,7 +955,14 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
                                    f"exclude it with --columns")
 
     infinite = {}
+    if floats:
+        block = np.isinf(frame[[c for c in dataset.variables if c in floats]].to_numpy())
+        counts = block.sum(axis=0)
+        infinite.update((c, int(k)) for c, k in zip(
+            [c for c in dataset.variables if c in floats], counts) if k)
     for column in dataset.variables:
+        if column in floats:
+            continue
         if _is_numeric(frame[column]):
             count = int(np.isinf(pd.to_numeric(frame[column]).to_numpy(dtype=float)).sum())
             if count:
@@ -987,6 +998,9 @@ def check_collinearity(dataset: Dataset, *, correlation=None) -> None:
     cost one small eigenvalue decomposition.
     """
     frame = dataset.frame
+    if (correlation is not None and correlation.shape == (len(dataset.variables),) * 2
+            and _clearly_independent(correlation)):
+        return  # the common case, settled by the test's own correlation matrix
     numeric = [c for c in dataset.variables
                if _is_numeric(frame[c]) or pd.api.types.is_bool_dtype(frame[c].dtype)]
     if len(numeric) != len(dataset.variables):

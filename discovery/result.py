@@ -16,7 +16,7 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
-from typing import Mapping, Sequence
+from typing import Mapping, NamedTuple, Sequence
 
 import networkx as nx
 import numpy as np
@@ -133,6 +133,47 @@ class TestLog(Sequence):
         return out
 
 
+class LazyRecords(Sequence):
+    """An immutable sequence whose records are built on first access.
+
+    A search on hundreds of variables removes tens of thousands of pairs; building a record
+    for each is left until someone reads them (the window, the JSON writer), so the search
+    itself does not pay for it.
+    """
+
+    __slots__ = ("_build", "_items")
+
+    def __init__(self, build):
+        self._build = build if callable(build) else (lambda items=tuple(build): items)
+        self._items = None
+
+    def _all(self) -> tuple:
+        if self._items is None:
+            self._items = tuple(self._build())
+            self._build = None
+        return self._items
+
+    def __len__(self):
+        return len(self._all())
+
+    def __getitem__(self, i):
+        return self._all()[i]
+
+    def __iter__(self):
+        return iter(self._all())
+
+    def __eq__(self, other):
+        if isinstance(other, (LazyRecords, tuple)):
+            return self._all() == tuple(other)
+        return NotImplemented
+
+    def __hash__(self):
+        return hash(self._all())
+
+    def __repr__(self):
+        return f"LazyRecords({len(self)} records)"
+
+
 @dataclass(frozen=True)
 class TestRecord:
     """One independence test run during the search."""
@@ -190,21 +231,27 @@ class Edge:
                 "locked": self.locked}
 
 
-@dataclass(frozen=True)
-class Removal:
-    """A non-adjacent pair: why it has no edge."""
+class Removal(NamedTuple):
+    """A non-adjacent pair and why it has no edge (a light immutable record: a search on
+    hundreds of variables removes tens of thousands of pairs).
+
+    ``by`` is ``"test"`` when the data gave a separating set, ``"knowledge"`` when the pair is
+    forbidden and the data found no separating set; ``forbidden`` says whether the knowledge
+    forbids the pair at all.
+    """
 
     a: str
     b: str
     separating_set: tuple[str, ...] | None
     pvalue: float
-    by: str  # "test" (a separating set was found) or "knowledge" (forbidden, none found)
+    by: str
+    forbidden: bool = False
 
     def to_dict(self) -> dict:
         return {"a": self.a, "b": self.b,
                 "separating_set": None if self.separating_set is None
                 else list(self.separating_set),
-                "pvalue": _num(self.pvalue), "by": self.by}
+                "pvalue": _num(self.pvalue), "by": self.by, "forbidden": self.forbidden}
 
 
 @dataclass(frozen=True)
@@ -227,9 +274,12 @@ class PairEvidence:
             if self.removal.by == "test":
                 lines.append(f"  removed: independent given "
                              f"{_set_text(self.removal.separating_set)} "
-                             f"(p = {self.removal.pvalue:.3g})")
+                             f"(p = {self.removal.pvalue:.3g})"
+                             + ("; also forbidden by knowledge" if self.removal.forbidden
+                                else ""))
             else:
-                lines.append("  removed: forbidden by knowledge (no separating set found)")
+                lines.append("  removed: forbidden by knowledge (the data gave no separating "
+                             "set)")
         for t in self.tests:
             lines.append(f"  test given {_set_text(t.given)}: p = {t.pvalue:.4g}")
         return "\n".join(lines)
@@ -276,7 +326,7 @@ class SearchResult:
     settings: SearchSettings
     knowledge: Knowledge
     edges: tuple[Edge, ...]
-    removed: tuple[Removal, ...]
+    removed: Sequence[Removal]
     tests: TestLog
     triples: tuple[Mapping, ...] = ()
     conflicts: tuple[str, ...] = ()
@@ -293,6 +343,8 @@ class SearchResult:
         object.__setattr__(self, "triples", tuple(_freeze(t) for t in self.triples))
         if not isinstance(self.tests, TestLog):
             object.__setattr__(self, "tests", TestLog.from_rows(self.tests))
+        if not isinstance(self.removed, LazyRecords):
+            object.__setattr__(self, "removed", LazyRecords(tuple(self.removed)))
 
     # -- queries ------------------------------------------------------------------------------
     def edge(self, a: str, b: str) -> Edge | None:
@@ -435,8 +487,11 @@ def _from_dict(doc, source) -> SearchResult:
             if r["a"] not in known or r["b"] not in known:
                 fail(f"removed pair {r['a']!r} — {r['b']!r} names an unknown variable")
             sep = r.get("separating_set")
+            if r.get("by", "test") not in ("test", "knowledge"):
+                fail(f"removal reason {r.get('by')!r} is not 'test' or 'knowledge'")
             removed.append(Removal(r["a"], r["b"], None if sep is None else tuple(sep),
-                                   _float(r.get("pvalue")), r.get("by", "test")))
+                                   _float(r.get("pvalue")), r.get("by", "test"),
+                                   bool(r.get("forbidden", False))))
         tests = TestLog.from_rows((x, y, tuple(s), _float(p))
                                   for x, y, s, p in doc["evidence"]["tests"])
     except ResultFormatError:

@@ -206,58 +206,44 @@ def _pvalues_of_chunk(args):
 
 
 class _SizeTable:
-    """p-values of one test and one set size, keyed by rows packed into int64.
+    """p-values of one test and one set size, in a dict keyed by each row packed into an int.
 
-    Keys live in a few sorted runs (searched with ``np.searchsorted``); a new batch adds a
-    run, and runs are merged only when there are many, so inserting costs little even when a
-    level is answered in many small batches.
+    Packing ``[x, y, s1..sk]`` into one integer (``bits`` per variable) keeps the per-test cost
+    of a lookup or an insert to one hash of a small int, whatever the table's size.
     """
-
-    _MAX_RUNS = 6
 
     def __init__(self, n_vars: int, width: int):
         self.bits = max(1, int(n_vars).bit_length())
         self.packable = self.bits * width <= 62
-        self.runs: list[tuple[np.ndarray, np.ndarray]] = []
-        self.fallback: dict[bytes, float] = {}
+        self.table: dict = {}
 
-    def pack(self, idx: np.ndarray) -> np.ndarray:
+    def keys_of(self, idx: np.ndarray) -> list:
+        if not self.packable:
+            return [r.tobytes() for r in idx]
         key = np.zeros(len(idx), dtype=np.int64)
         for k in range(idx.shape[1]):
             key |= idx[:, k].astype(np.int64) << (self.bits * k)
-        return key
+        return key.tolist()
 
-    def lookup(self, idx):
-        """(values with NaN where unknown, mask of known, packed keys or None)."""
-        if not self.packable:
-            got = [self.fallback.get(r.tobytes()) for r in idx]
-            known = np.array([g is not None for g in got], dtype=bool)
-            return np.array([np.nan if g is None else g for g in got], dtype=float), known, None
-        keys = self.pack(idx)
-        values = np.full(len(keys), np.nan)
-        known = np.zeros(len(keys), dtype=bool)
-        for run_keys, run_values in self.runs:
-            pos = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
-            hit = run_keys[pos] == keys
-            values[hit] = run_values[pos[hit]]
-            known |= hit
-        return values, known, keys
+    # NaN p-values are stored as this marker so that a lookup can tell "known to be NaN"
+    # from "unknown" (None) in one pass.
+    _NAN = -1.0
 
-    def store(self, idx, keys, values):
-        if not self.packable:
-            for r, v in zip(idx, values):
-                self.fallback[r.tobytes()] = float(v)
-            return
-        order = np.argsort(keys, kind="stable")
-        self.runs.append((keys[order], np.asarray(values, dtype=float)[order]))
-        if len(self.runs) > self._MAX_RUNS:
-            merged = np.concatenate([k for k, _ in self.runs])
-            vals = np.concatenate([v for _, v in self.runs])
-            order = np.argsort(merged, kind="stable")
-            self.runs = [(merged[order], vals[order])]
+    def lookup(self, keys: list) -> tuple[np.ndarray, np.ndarray]:
+        """(p-values, mask of known keys); unknown keys get NaN."""
+        if not self.table:
+            return np.full(len(keys), np.nan), np.zeros(len(keys), dtype=bool)
+        # map() runs in C; numpy turns the None of a missing key into NaN
+        values = np.array(list(map(self.table.get, keys)), dtype=float)
+        known = ~np.isnan(values)
+        values[values == self._NAN] = np.nan
+        return values, known
+
+    def store(self, keys: list, values: np.ndarray) -> None:
+        self.table.update(zip(keys, np.where(np.isnan(values), self._NAN, values).tolist()))
 
     def __len__(self):
-        return sum(len(k) for k, _ in self.runs) + len(self.fallback)
+        return len(self.table)
 
 
 class PValueCache:
@@ -295,23 +281,15 @@ class PValueCache:
             table = self._store.get(key)
             if table is None:
                 table = self._store[key] = _SizeTable(len(test.variables), idx.shape[1])
-            values, known, keys = table.lookup(idx)
+            keys = table.keys_of(idx)
+            values, known = table.lookup(keys)
         todo = np.flatnonzero(~known)
         if len(todo):
-            if keys is not None:
-                # compute each distinct missing row once
-                uniq, first, inverse = np.unique(keys[todo], return_index=True,
-                                                 return_inverse=True)
-                rows = todo[first]
-                fresh = test.pvalues_array(idx[rows], executor=executor)
-                values[todo] = fresh[inverse]
-                with self._lock:
-                    table.store(idx[rows], uniq, fresh)
-            else:
-                fresh = test.pvalues_array(idx[todo], executor=executor)
-                values[todo] = fresh
-                with self._lock:
-                    table.store(idx[todo], None, fresh)
+            fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
+            values[todo] = fresh
+            with self._lock:
+                table.store(keys if len(todo) == len(keys) else [keys[i] for i in todo],
+                            fresh)
         with self._lock:
             self.misses += len(todo)
             self.hits += len(idx) - len(todo)

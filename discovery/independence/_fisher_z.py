@@ -51,6 +51,8 @@ class FisherZ(IndependenceTest):
     missing : {"drop", "test-wise"}
         ``"drop"``: rows with any missing value must already be removed (NaN raises).
         ``"test-wise"``: each test uses the rows complete on its own variables.
+    fingerprint : str, optional
+        A hash that identifies the data (keys the p-value cache); computed when not given.
 
     Warns
     -----
@@ -62,7 +64,8 @@ class FisherZ(IndependenceTest):
     name = "fisher-z"
     vectorised = True
 
-    def __init__(self, data, *, variables=None, missing: str = "drop"):
+    def __init__(self, data, *, variables=None, missing: str = "drop",
+                 fingerprint: str | None = None):
         if hasattr(data, "columns"):
             variables = tuple(str(c) for c in data.columns)
             values = data.to_numpy(dtype=float)
@@ -84,7 +87,10 @@ class FisherZ(IndependenceTest):
                 "the data has missing values; drop incomplete rows first or use "
                 "missing='test-wise'")
         self.n = int(values.shape[0])
-        self._key = ("fisher-z", missing, values.shape, _fingerprint(values))
+        # The cache key names the data; a caller that already hashed it (the Dataset's
+        # SHA-256 with the column order) passes that instead of hashing the values again.
+        self._key = ("fisher-z", missing, values.shape, self.variables,
+                     fingerprint or _fingerprint(values))
         self._corr = None if self._has_nan else _correlation(values)
 
     @property
@@ -143,22 +149,36 @@ def _correlation(values: np.ndarray) -> np.ndarray:
 
 
 def _partial_correlations(corr: np.ndarray, idx: np.ndarray) -> np.ndarray:
-    """Partial correlations of columns idx[:,0] and idx[:,1] given idx[:,2:], one per row."""
-    if idx.shape[1] == 2:
+    """Partial correlations of columns idx[:,0] and idx[:,1] given idx[:,2:], one per row.
+
+    Sets of one or two variables use the recursion
+    ``r_xy.Sz = (r_xy.S - r_xz.S r_yz.S) / sqrt((1 - r_xz.S^2)(1 - r_yz.S^2))``
+    elementwise; larger sets invert their correlation submatrices as one stack.
+    """
+    k = idx.shape[1] - 2
+    if k == 0:
         return corr[idx[:, 0], idx[:, 1]].copy()
-    if idx.shape[1] == 3:
-        # Closed form for one conditioning variable: no inverse needed.
-        rxy = corr[idx[:, 0], idx[:, 1]]
-        rxz = corr[idx[:, 0], idx[:, 2]]
-        ryz = corr[idx[:, 1], idx[:, 2]]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            denom = np.sqrt(np.clip((1 - rxz ** 2) * (1 - ryz ** 2), 0.0, None))
-            r = (rxy - rxz * ryz) / denom
-        return np.where(denom > 1e-12, r, np.nan)
+    if k == 1:
+        x, y, z = idx.T
+        return _recurse(corr[x, y], corr[x, z], corr[y, z])
+    if k == 2:
+        x, y, z, w = idx.T
+        rxw_z = _recurse(corr[x, w], corr[x, z], corr[w, z])
+        ryw_z = _recurse(corr[y, w], corr[y, z], corr[w, z])
+        rxy_z = _recurse(corr[x, y], corr[x, z], corr[y, z])
+        return _recurse(rxy_z, rxw_z, ryw_z)
     sub = corr[idx[:, :, None], idx[:, None, :]]
     prec = _stacked_inverse(sub)
     with np.errstate(invalid="ignore", divide="ignore"):
         return -prec[:, 0, 1] / np.sqrt(prec[:, 0, 0] * prec[:, 1, 1])
+
+
+def _recurse(rxy, rxz, ryz):
+    """One step of the partial-correlation recursion; NaN where a factor is degenerate."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        denom = np.sqrt(np.clip((1 - rxz ** 2) * (1 - ryz ** 2), 0.0, None))
+        r = (rxy - rxz * ryz) / denom
+    return np.where(denom > 1e-12, r, np.nan)
 
 
 def _stacked_inverse(sub: np.ndarray) -> np.ndarray:

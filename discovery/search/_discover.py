@@ -17,9 +17,9 @@ from typing import Callable
 import numpy as np
 
 from ..exceptions import DataValidationError, KnowledgeError, SettingsError
-from ..independence import IndependenceTest, PValueCache, make_test
+from ..independence import FisherZ, IndependenceTest, PValueCache, make_test
 from ..independence._base import canonical_triple
-from ..result import Edge, Removal, SearchResult, TestLog
+from ..result import Edge, LazyRecords, Removal, SearchResult, TestLog
 from ..settings import SearchSettings, check_parameter
 from ..knowledge import Knowledge
 from ._orientation import orient
@@ -120,7 +120,12 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
         frame = dataset.frame[sorted(dataset.frame.columns)]
         t_data = time.perf_counter()
-        test_obj = make_test(test_name, frame, missing=dataset.missing, **(test_options or {}))
+        if test_name == "fisher-z" and not test_options:
+            # the dataset is already hashed: name the data by that hash and the column order
+            test_obj = FisherZ(frame, missing=dataset.missing, fingerprint=dataset.sha256)
+        else:
+            test_obj = make_test(test_name, frame, missing=dataset.missing,
+                                 **(test_options or {}))
         if test_name == "fisher-z":
             # reuse the test's correlation matrix for the collinearity check (one matrix)
             corr = getattr(test_obj, "_corr", None)
@@ -145,8 +150,13 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
             if depth is None and cap < len(names) - 2:
                 notes.append(f"depth limited to {cap} by the number of rows ({test_obj.n})")
             depth = cap if depth is None else depth
-    cache = cache if cache is not None else PValueCache()
     cancelled = _cancel_check(cancel)
+    if cache is None and settings.collider_rule == "standard":
+        # Nothing could be reused: no earlier search, and the standard rule runs no test
+        # twice. Skip the cache's bookkeeping.
+        cache = _CountingPassThrough()
+    elif cache is None:
+        cache = PValueCache()
 
     def pvalues(idx):
         return cache.pvalues_array(test_obj, idx, executor=executor)
@@ -155,8 +165,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
     t0 = time.perf_counter()
-    skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth, locked=locked, forbidden=forbidden,
-                                progress=progress, cancelled=cancelled)
+    skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
+                                locked=locked, forbidden=forbidden, progress=progress,
+                                cancelled=cancelled, association=test_obj.association())
     t1 = time.perf_counter()
     rank = np.arange(len(names))
 
@@ -264,7 +275,6 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         if skeleton.log else np.empty(0, dtype=np.intp)
     log_p = np.concatenate([b[1] for b in skeleton.log]) if skeleton.log else np.empty(0)
     keys, ids = np.unique(pair_key, return_inverse=True)
-    pair_id = {int(k): i for i, k in enumerate(keys)}
     n_tests = np.bincount(ids, minlength=len(keys))
     max_p = np.full(len(keys), -np.inf)
     finite = ~np.isnan(log_p)
@@ -276,7 +286,8 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         for y in skeleton.adjacent[x]:
             if key(y) < key(x):
                 continue
-            k = pair_id.get(x * len(names) + y)
+            at = int(np.searchsorted(keys, x * len(names) + y))
+            k = at if at < len(keys) and keys[at] == x * len(names) + y else None
             mp = -np.inf if k is None else max_p[k]
             stats = dict(max_pvalue=float(mp) if np.isfinite(mp) else float("nan"),
                          tests=0 if k is None else int(n_tests[k]),
@@ -295,19 +306,25 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     edges.sort(key=lambda e: (e.source, e.target))
     forbidden_idx = {(min(index[a], index[b]), max(index[a], index[b]))
                      for a, b in knowledge.forbidden}
-    removed = []
-    get = names.__getitem__
-    for (x, y), (s, p) in sorted(skeleton.sepsets.items()):
-        removed.append(Removal(names[x], names[y], tuple(map(get, s)), p,
-                               "knowledge" if (x, y) in forbidden_idx else "test"))
-    for x, y in skeleton.unseparated_forbidden:
-        removed.append(Removal(names[x], names[y], None, float("nan"), "knowledge"))
-    if skeleton.unseparated_forbidden:  # otherwise already in name order (index order)
-        removed.sort(key=lambda r: (r.a, r.b))
+    sepsets = skeleton.sepsets
+    unseparated = list(skeleton.unseparated_forbidden)
+
+    def build_removed():
+        get = names.__getitem__
+        out = [Removal(names[x], names[y], tuple(map(get, s)), p, "test",
+                       (x, y) in forbidden_idx)
+               for (x, y), (s, p) in sorted(sepsets.items())]
+        out += [Removal(names[x], names[y], None, float("nan"), "knowledge", True)
+                for x, y in unseparated]
+        if unseparated:  # otherwise already in name order (index order)
+            out.sort(key=lambda r: (r.a, r.b))
+        return out
+
+    removed = LazyRecords(build_removed)
     kinds = [e.kind for e in edges]
     counts = {"edges": len(edges), "directed": kinds.count("directed"),
               "undirected": kinds.count("undirected"), "contested": kinds.count("contested"),
-              "removed": len(removed), "tests": len(tests),
+              "removed": len(sepsets) + len(unseparated), "tests": len(tests),
               "tests_computed": cache.misses - misses0, "tests_from_cache": cache.hits - hits0,
               "depth_reached": skeleton.depth_reached, "levels": list(skeleton.levels)}
     data = {"rows": getattr(test_obj, "n", None), "columns": len(names)}
@@ -318,7 +335,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         notes = list(dataset.notes) + notes
     return SearchResult(
         variables=display, settings=settings, knowledge=knowledge, edges=tuple(edges),
-        removed=tuple(removed), tests=tests,
+        removed=removed, tests=tests,
         triples=tuple(sorted(orientation.triples, key=lambda t: (t["z"], t["x"], t["y"]))),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
@@ -353,3 +370,15 @@ class NameOrderedTest(IndependenceTest):
         m = self._to_inner
         return self.inner._batch([canonical_triple(m[x], m[y], [m[s] for s in S])
                                   for x, y, S in triples])
+
+
+class _CountingPassThrough:
+    """Stands in for a PValueCache when nothing can be reused: computes and counts."""
+
+    def __init__(self):
+        self.hits = 0
+        self.misses = 0
+
+    def pvalues_array(self, test, idx, *, executor=None):
+        self.misses += len(idx)
+        return test.pvalues_array(idx, executor=executor)

@@ -20,6 +20,7 @@ locked pairs are never removed, and a test that separates one is reported as a c
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 from itertools import combinations, islice
 from typing import Callable
@@ -46,20 +47,123 @@ class SkeletonOutcome:
     levels: list[dict] = field(default_factory=list)
 
 
-def _ordered_sides(x: int, y: int, frozen: np.ndarray, association: np.ndarray):
-    """Neighbours of x (without y) and of y (without x), strongest candidates first.
+def _weakness_codes(association: np.ndarray) -> np.ndarray:
+    """``1 - association`` in 2^20 integer steps (int64, n x n): the ranking key of a
+    candidate, computed once per search so that ranking a level costs integer gathers only."""
+    a = np.clip(np.nan_to_num(np.asarray(association, dtype=float), nan=0.0), 0.0, 1.0)
+    return np.rint((1.0 - a) * (2 ** 20 - 1)).astype(np.int32)
 
-    A candidate z is ranked by ``min(association[x, z], association[y, z])``: a variable
-    that separates x from y is usually associated with both. Ties go to the lower index,
-    which the caller makes the order of names, so the ranking never depends on column order.
+
+def _ranked_candidates(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray,
+                       top: int | None = None):
+    """Size-1 candidates of each pair, best first: a row per pair of ``order`` lists first the
+    neighbours of x (without y), then those of y not adjacent to x (without x), each side
+    strongest first (smallest ``max(weakness[x, z], weakness[y, z])``: a separator is usually
+    associated with both), ties by index (= name) order; ``count`` says how many entries are
+    real.
+
+    With ``top``, only the first ``top`` ranks are computed (a linear-time partition, then a
+    small sort): most pairs are separated by one of their first few candidates.
     """
+    rows = np.arange(len(pairs))
+    side_x = frozen[pairs[:, 0]].copy()
+    side_x[rows, pairs[:, 1]] = False
+    side_y = frozen[pairs[:, 1]] & ~side_x
+    side_y[rows, pairs[:, 0]] = False
+    count = side_x.sum(axis=1) + side_y.sum(axis=1)
+    n = frozen.shape[1]
+    shift = max(11, int(n).bit_length())
+    # one distinct integer key per entry: (side, weakness, index); side 0 = x, 1 = y, 2 = none
+    side = (~side_x).view(np.uint8) + (~(side_x | side_y)).view(np.uint8)
+    key = np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
+    key |= side.astype(np.int64) << 21
+    key <<= shift
+    key |= np.arange(n, dtype=np.int64)[None, :]
+    if top is not None and top < n:
+        part = np.argpartition(key, top - 1, axis=1)[:, :top]
+        inner = np.argsort(np.take_along_axis(key, part, axis=1), axis=1)
+        return np.take_along_axis(part, inner, axis=1), count
+    return np.argsort(key, axis=1), count
+
+
+def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
+    """For each pair, adj(x)\\{y} and adj(y)\\{x} as lists, strongest candidates first."""
+    rows = np.arange(len(pairs))
+    n = frozen.shape[1]
+    shift = max(11, int(n).bit_length())
+    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
+            << shift) | np.arange(n, dtype=np.int64)[None, :]
     sides = []
-    for a, b in ((x, y), (y, x)):
-        nb = np.flatnonzero(frozen[a])
-        nb = nb[nb != b]
-        score = np.minimum(association[x, nb], association[y, nb])
-        sides.append(nb[np.lexsort((nb, -score))].tolist())
+    for a, b in ((0, 1), (1, 0)):
+        member = frozen[pairs[:, a]].copy()
+        member[rows, pairs[:, b]] = False
+        order = np.argsort(np.where(member, base, np.int64(1) << (shift + 22)), axis=1)
+        counts = member.sum(axis=1)
+        sides.append([order[i, :counts[i]].tolist() for i in rows])
     return sides
+
+
+_COMBOS: dict[tuple[int, int], np.ndarray] = {}
+
+
+def _combos(n: int, k: int) -> np.ndarray:
+    """All k-subsets of range(n) as rows, in itertools.combinations order (cached)."""
+    if (n, k) not in _COMBOS:
+        _COMBOS[(n, k)] = np.array(list(combinations(range(n), k)),
+                                   dtype=np.intp).reshape(-1, k)
+    return _COMBOS[(n, k)]
+
+
+def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
+    """Every candidate set of every pair at once, in enumeration order, or None if too many.
+
+    Returns ``(idx, owner, rank)``: rows ``[x, y, s1..sk]`` (sets ascending), the pair each
+    row belongs to (rows of a pair contiguous), and the row's position in its pair's order:
+    first the k-subsets of adj(x)\\{y}, then those of adj(y)\\{x} not inside adj(x), each in
+    combinations order of the ranked neighbours (strongest first), as :func:`_candidate_sets`.
+    """
+    rows = np.arange(len(pairs))
+    n = frozen.shape[1]
+    shift = max(11, int(n).bit_length())
+    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
+            << shift) | np.arange(n, dtype=np.int64)[None, :]
+    parts = []
+    member_x = None
+    for side, (a, b) in enumerate(((0, 1), (1, 0))):
+        member = frozen[pairs[:, a]].copy()
+        member[rows, pairs[:, b]] = False
+        counts = member.sum(axis=1)
+        width = int(counts.max()) if len(counts) else 0
+        if width < level:
+            member_x = member if side == 0 else member_x
+            continue
+        combos = _combos(width, level)
+        if len(pairs) * len(combos) > limit:
+            return None
+        order = np.argsort(np.where(member, base, np.int64(1) << (shift + 22)),
+                           axis=1)[:, :width]
+        valid = combos[None, :, -1] < counts[:, None]            # (m, C)
+        sets = order[:, combos]                                  # (m, C, k)
+        if side == 1:
+            inside = np.take_along_axis(member_x, sets.reshape(len(pairs), -1),
+                                        axis=1).reshape(sets.shape).all(axis=2)
+            valid &= ~inside
+        else:
+            member_x = member
+        owner = np.broadcast_to(rows[:, None], valid.shape)[valid]
+        parts.append((owner, sets[valid], side))
+    if not parts:
+        return np.empty((0, level + 2), dtype=np.intp), np.empty(0, np.intp), \
+            np.empty(0, np.intp)
+    owner = np.concatenate([p[0] for p in parts])
+    sets = np.concatenate([p[1] for p in parts])
+    side = np.concatenate([np.full(len(p[0]), p[2]) for p in parts])
+    order = np.lexsort((np.arange(len(owner)), side, owner))  # pair, then x side, y side
+    owner, sets = owner[order], np.sort(sets[order], axis=1)
+    starts = np.searchsorted(owner, rows)
+    rank = np.arange(len(owner)) - starts[owner]
+    idx = np.column_stack([pairs[owner, 0], pairs[owner, 1], sets])
+    return idx, owner, rank
 
 
 def _candidate_sets(side_x: list[int], side_y: list[int], level: int):
@@ -85,40 +189,6 @@ def _count_sets(pairs: np.ndarray, frozen: np.ndarray, degree: np.ndarray,
     sizes = (comb(degree[xs] - link, level) + comb(degree[ys] - link, level)
              - comb(common, level))
     return np.rint(sizes).astype(np.int64)
-
-
-def _level_one_candidates(pairs: np.ndarray, frozen: np.ndarray, association: np.ndarray):
-    """All size-1 candidate rows of a level, in enumeration order, with owner and rank.
-
-    For pair i = (x, y): every z adjacent to x (z != y), then every z adjacent to y but not
-    to x (z != x); within each side strongest first, as in :func:`_ordered_sides`. Returns
-    ``(idx, owner, rank)`` with ``rank`` the position of the row within its pair's list.
-    """
-    xs, ys = pairs[:, 0], pairs[:, 1]
-    ax = frozen[xs].copy()
-    ax[np.arange(len(xs)), ys] = False
-    ay = frozen[ys] & ~ax
-    ay[np.arange(len(xs)), xs] = False
-    ox, zx = np.nonzero(ax)
-    oy, zy = np.nonzero(ay)
-    owner = np.concatenate([ox, oy])
-    z = np.concatenate([zx, zy])
-    side = np.concatenate([np.zeros(len(ox), np.int8), np.ones(len(oy), np.int8)])
-    score = np.minimum(association[xs[owner], z], association[ys[owner], z])
-    n_vars = frozen.shape[0]
-    if n_vars < 2 ** 11 and len(pairs) < 2 ** 30:
-        # one int64 key (owner, side, strongest first, then index): a single argsort
-        weak = np.round((1.0 - np.clip(np.nan_to_num(score), 0.0, 1.0)) * (2 ** 20 - 1))
-        key = (((owner.astype(np.int64) * 2 + side) << 31)
-               | (weak.astype(np.int64) << 11) | z.astype(np.int64))
-        order = np.argsort(key, kind="stable")
-    else:
-        order = np.lexsort((z, -score, side, owner))
-    owner, z = owner[order], z[order]
-    starts = np.searchsorted(owner, np.arange(len(pairs)))
-    rank = np.arange(len(owner)) - starts[owner]
-    idx = np.column_stack([xs[owner], ys[owner], z])
-    return idx, owner, rank
 
 
 def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=None,
@@ -186,6 +256,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
         if not len(pairs):
             break
         total = int(sizes.sum())
+        level_started = time.perf_counter()
         done = 0
         removed_now = []
 
@@ -195,18 +266,27 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             hits = np.flatnonzero(p > alpha)
             # first independent row of each owner (an owner's rows are contiguous, in order)
             hit_owners, first = np.unique(owner_of_row[hits], return_index=True)
-            found = set(hit_owners.tolist())
             chosen = hits[first]
-            rows = idx[chosen].tolist()
-            for r, pv in zip(rows, p[chosen].tolist()):
-                pair, s = (r[0], r[1]), tuple(r[2:])
-                if pair in locked:
-                    out.locked_conflicts.append((pair[0], pair[1], s, pv))
-                    conflicted.add(pair)
-                else:
-                    out.sepsets[pair] = (s, pv)
-                    removed_now.append(pair)
-            return found
+            rows = idx[chosen]
+            pairs = list(zip(rows[:, 0].tolist(), rows[:, 1].tolist()))
+            sets = ([()] * len(pairs) if rows.shape[1] == 2
+                    else list(map(tuple, rows[:, 2:].tolist())))
+            pvs = p[chosen].tolist()
+            if locked and not locked.isdisjoint(pairs):
+                rows = rows[[pair not in locked for pair in pairs]]
+                keep = []
+                for pair, s, pv in zip(pairs, sets, pvs):
+                    if pair in locked:
+                        out.locked_conflicts.append((pair[0], pair[1], s, pv))
+                        conflicted.add(pair)
+                    else:
+                        keep.append((pair, s, pv))
+                pairs = [k[0] for k in keep]
+                sets = [k[1] for k in keep]
+                pvs = [k[2] for k in keep]
+            out.sepsets.update(zip(pairs, zip(sets, pvs)))
+            removed_now.append(rows[:, :2])
+            return hit_owners
 
         if cancelled is not None and cancelled():
             raise SearchCancelled("the search was stopped before it finished")
@@ -219,11 +299,51 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 association = np.zeros((n_vars, n_vars))
                 association[idx[:, 0], idx[:, 1]] = 1.0 - np.nan_to_num(p, nan=1.0)
                 association = np.maximum(association, association.T)
+            weakness = _weakness_codes(association)
             if progress is not None:
                 progress({"phase": "skeleton", "level": level, "done": done,
                           "planned": total})
         elif level == 1:
-            all_idx, all_owner, all_rank = _level_one_candidates(pairs, frozen, association)
+            # Candidates are ranked per pair in blocks (a pairs x variables matrix each), and
+            # round r sends every still-open pair its candidates ranked lo..hi-1.
+            block = max(1, 4_000_000 // max(n_vars, 1))
+            first_ranks = 11  # rounds [0,1), [1,3), [3,11) need only the 11 best candidates
+            for start in range(0, len(pairs), block):
+                sub = pairs[start:start + block]
+                gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
+                order, count = _ranked_candidates(sub, frozen, weakness, top=first_ranks)
+                ranked = order.shape[1]
+                active = np.flatnonzero(count > 0)
+                lo, hi = 0, 1
+                while len(active):
+                    if cancelled is not None and cancelled():
+                        raise SearchCancelled("the search was stopped before it finished")
+                    if hi > ranked and ranked < n_vars:
+                        # the few pairs still open need their whole ranking
+                        sub, gid, count = sub[active], gid[active], count[active]
+                        order, _ = _ranked_candidates(sub, frozen, weakness)
+                        ranked = order.shape[1]
+                        active = np.arange(len(sub))
+                    cols = order[active, lo:hi]
+                    valid = np.arange(lo, lo + cols.shape[1])[None, :] < count[active][:, None]
+                    local = np.broadcast_to(active[:, None], cols.shape)[valid]
+                    z = cols[valid]
+                    idx = np.column_stack([sub[local, 0], sub[local, 1], z])
+                    p = np.asarray(pvalues(idx), dtype=float)
+                    done += len(idx)
+                    found = settle(idx, p, gid[local])
+                    still = count[active] > hi
+                    if len(found):
+                        still &= ~np.isin(gid[active], found)
+                    active = active[still]
+                    width = hi - lo
+                    lo, hi = hi, hi + (2 if width == 1 else 4 * width)
+                    if progress is not None:
+                        progress({"phase": "skeleton", "level": level, "done": done,
+                                  "planned": total})
+        elif (flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
+            # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
+            all_idx, all_owner, all_rank = flat
             active = np.ones(len(pairs), dtype=bool)
             lo, hi = 0, 1
             while True:
@@ -236,16 +356,15 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 p = np.asarray(pvalues(idx), dtype=float)
                 done += len(idx)
                 found = settle(idx, p, owner)
-                if found:
-                    active[list(found)] = False
+                active[found] = False
                 width = hi - lo
                 lo, hi = hi, hi + (2 if width == 1 else 4 * width)
                 if progress is not None:
                     progress({"phase": "skeleton", "level": level, "done": done,
                               "planned": total})
         else:
-            iters = [_candidate_sets(*_ordered_sides(int(x), int(y), frozen, association),
-                                     level) for x, y in pairs]
+            side_x, side_y = _ranked_sides(pairs, frozen, weakness)
+            iters = [_candidate_sets(sx, sy, level) for sx, sy in zip(side_x, side_y)]
             active = list(range(len(pairs)))
             chunk = 1
             while active:
@@ -267,19 +386,20 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 owner = np.asarray(owner_list)
                 p = np.asarray(pvalues(idx), dtype=float)
                 done += len(idx)
-                found = settle(idx, p, owner)
+                found = set(settle(idx, p, owner).tolist())
                 active = [o for o in full if o not in found]
                 chunk = chunk * 4 if chunk > 1 else 2
                 if progress is not None:
                     progress({"phase": "skeleton", "level": level, "done": done,
                               "planned": total})
-        for x, y in removed_now:
-            if (x, y) in ghosts:
-                ghosts.discard((x, y))
-            else:
-                adj[x, y] = adj[y, x] = False
+        gone = np.concatenate(removed_now) if removed_now else np.empty((0, 2), np.intp)
+        if ghosts and len(gone):
+            ghosts -= set(map(tuple, gone.tolist()))  # forbidden pairs now separated
+        adj[gone[:, 0], gone[:, 1]] = False  # (a no-op for forbidden pairs)
+        adj[gone[:, 1], gone[:, 0]] = False
         out.levels.append({"level": level, "pairs": len(pairs), "tests": done,
-                           "removed": len(removed_now)})
+                           "removed": sum(len(r) for r in removed_now),
+                           "seconds": round(time.perf_counter() - level_started, 6)})
         out.depth_reached = level
         level += 1
     out.adjacent = [set(np.flatnonzero(row).tolist()) for row in adj]
