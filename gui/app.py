@@ -80,6 +80,10 @@ def qt_problem(*, probe: bool = True) -> str | None:
             lines = [ln.strip() for ln in done.stderr.splitlines() if ln.strip()]
             reason = next((ln for ln in lines if "platform plugin" in ln or "xcb" in ln),
                           lines[0] if lines else f"exit status {done.returncode}")
+            if "connect to display" in reason:
+                return (f"edgewise gui: cannot connect to the display "
+                        f"{os.environ.get('DISPLAY')!r} ({reason[:120]}); start it inside a "
+                        "desktop session, check DISPLAY, or set QT_QPA_PLATFORM=offscreen")
             return (f"edgewise gui: Qt cannot start its window system ({reason[:160]}); on "
                     f"Debian/Ubuntu install `sudo apt-get install {_all_packages()}`")
     return None

@@ -58,4 +58,5 @@ def test_the_real_xcb_plugin_fails_politely_on_this_machine():
     assert done.returncode == app.EXIT_NO_QT
     lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1 and lines[0].startswith("edgewise gui:")
-    assert "apt-get install" in lines[0]
+    # without the X11 libraries: what to install; with them: the display that is missing
+    assert "apt-get install" in lines[0] or "cannot connect to the display ':97'" in lines[0]
