@@ -214,6 +214,8 @@ def _cmd_discover(args) -> int:
         else None
     dataset = read_table(args.data, columns=columns, missing=args.missing)
     knowledge = read_knowledge(args.knowledge) if args.knowledge else None
+    if knowledge is not None:
+        knowledge.check_variables(dataset.variables, source=args.knowledge)
     progress = _Progress()
     with make_executor(args.jobs) as executor:
         try:

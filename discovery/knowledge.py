@@ -42,6 +42,9 @@ _FORMAT = "edgewise-knowledge"
 
 
 def _pairs(values, field_name) -> tuple[tuple[str, str], ...]:
+    if values is not None and not isinstance(values, (list, tuple, set, frozenset)):
+        raise KnowledgeError(f"'{field_name}' must be a list of pairs like [[\"a\", \"b\"]]; "
+                             f"got {values!r}")
     out = []
     for item in values or ():
         if isinstance(item, str):
@@ -87,6 +90,9 @@ class Knowledge:
         for name in _PAIR_FIELDS:
             object.__setattr__(self, name, _pairs(getattr(self, name), name))
         stages = []
+        if self.stages is not None and not isinstance(self.stages, (list, tuple)):
+            raise KnowledgeError("'stages' must be a list of groups, each a list of names; "
+                                 f"got {self.stages!r}")
         for group in self.stages or ():
             if isinstance(group, str):
                 raise KnowledgeError("'stages' is a list of groups, each a list of names; "
@@ -173,9 +179,22 @@ class Knowledge:
         try:
             cycle = nx.find_cycle(arrows)
         except nx.NetworkXNoCycle:
-            return
-        path = " -> ".join([cycle[0][0]] + [v for _, v in cycle])
-        raise KnowledgeError(f"locked directions form a cycle ({path}); remove one of them")
+            cycle = None
+        if cycle:
+            path = " -> ".join([cycle[0][0]] + [v for _, v in cycle])
+            raise KnowledgeError(f"locked directions form a cycle ({path}); remove one of them")
+        # a chain of locked directions may not lead from a later stage back to an earlier one
+        for start in arrows.nodes:
+            s_start = self.stage_of(start)
+            if s_start is None:
+                continue
+            for end in nx.descendants(arrows, start):
+                s_end = self.stage_of(end)
+                if s_end is not None and s_end < s_start:
+                    path = " -> ".join(nx.shortest_path(arrows, start, end))
+                    raise KnowledgeError(
+                        f"locked directions {path} lead from stage {s_start + 1} back to "
+                        f"stage {s_end + 1}, against the stage order; remove one statement")
 
     def check_variables(self, variables: Iterable[str], *, source: str = "knowledge") -> None:
         """Raise KnowledgeError naming any variable the data do not have."""
@@ -198,9 +217,12 @@ class Knowledge:
             raise KnowledgeError(f"{source}: expected a table of knowledge fields")
         values = dict(values)
         fmt = values.pop("format", _FORMAT)
-        values.pop("version", None)
+        version = values.pop("version", 1)
         if fmt != _FORMAT:
             raise KnowledgeError(f"{source}: 'format' must be {_FORMAT!r}; got {fmt!r}")
+        if version != 1:
+            raise KnowledgeError(f"{source}: knowledge file version {version!r} is not "
+                                 "supported (this Edgewise reads version 1)")
         unknown = sorted(set(values) - set(_PAIR_FIELDS) - {"stages"})
         if unknown:
             raise KnowledgeError(f"{source}: unknown field(s) {unknown}; allowed: "
@@ -228,11 +250,12 @@ def read_knowledge(path) -> Knowledge:
         raise KnowledgeError(f"{path}: knowledge file not found; check the path") from None
     except (OSError, UnicodeDecodeError) as err:
         raise KnowledgeError(f"{path}: cannot read the knowledge file ({err})") from None
+    kind = "JSON" if path.suffix.lower() == ".json" else "TOML"
     try:
-        values = json.loads(text) if path.suffix.lower() == ".json" else tomllib.loads(text)
+        values = json.loads(text) if kind == "JSON" else tomllib.loads(text)
     except (json.JSONDecodeError, tomllib.TOMLDecodeError) as err:
-        raise KnowledgeError(f"{path}: not valid {'JSON' if path.suffix == '.json' else 'TOML'}"
-                             f" ({err}); see docs/knowledge.md for the format") from None
+        raise KnowledgeError(f"{path}: not valid {kind} ({err}); see docs/knowledge.md for "
+                             "the format") from None
     return Knowledge.from_dict(values, source=str(path))
 
 

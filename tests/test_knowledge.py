@@ -133,3 +133,33 @@ def test_knowledge_edit_reuses_the_cache():
     assert first.counts["tests_computed"] > 0
     assert second.counts["tests_computed"] == 0
     assert second.counts["tests_from_cache"] == second.counts["tests"]
+
+
+def test_locked_chain_against_stage_order_is_rejected():
+    # a (stage 2) -> m (no stage) -> b (stage 1): a later stage would cause an earlier one.
+    with pytest.raises(KnowledgeError, match="against the stage order"):
+        Knowledge(locked_directions=[("a", "m"), ("m", "b")], stages=[["b"], ["a"]])
+
+
+def test_file_version_and_field_types_are_checked(tmp_path):
+    path = tmp_path / "k.toml"
+    path.write_text("version = 2\n")
+    with pytest.raises(KnowledgeError, match="version 2 is not supported"):
+        read_knowledge(path)
+    path.write_text("locked = 5\n")
+    with pytest.raises(KnowledgeError, match="must be a list of pairs"):
+        read_knowledge(path)
+    upper = tmp_path / "K.JSON"
+    upper.write_text("{not json")
+    with pytest.raises(KnowledgeError, match="not valid JSON"):
+        read_knowledge(upper)
+
+
+def test_rules_never_orient_an_edge_the_knowledge_excludes_both_ways():
+    # c → a ← d is a collider; a — b would get a → b by rule 1, but knowledge excludes both
+    # a → b and b → a: the edge stays undirected and the conflict is reported.
+    dag = nx.DiGraph([("c", "a"), ("d", "a"), ("a", "b")])
+    k = Knowledge(forbidden_directions=[("a", "b"), ("b", "a")])
+    result = discover(None, test=DSeparationOracle(dag), knowledge=k)
+    assert result.edge("a", "b").kind == "undirected"
+    assert any("both directions" in c for c in result.conflicts)

@@ -9,6 +9,7 @@ collider rule or knowledge reuses the tests already run.
 
 from __future__ import annotations
 
+import dataclasses
 import platform
 import time
 from itertools import combinations
@@ -116,6 +117,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
                                       "object such as DSeparationOracle")
         dataset = _as_dataset(data, columns=columns, missing=missing)
+        if dataset.missing != settings.missing:  # a Dataset carries its own policy
+            settings = dataclasses.replace(settings, missing=dataset.missing)
         from ..data import check_collinearity, check_for_search
         check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
         frame = dataset.frame[sorted(dataset.frame.columns)]

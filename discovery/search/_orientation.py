@@ -145,7 +145,7 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
                                  "ends; marked contested")
 
     # 3. Meek's rules to a fixed point -----------------------------------------------------
-    _apply_meek_rules(adjacent, out, ambiguous, names, key)
+    _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden)
     return out
 
 
@@ -190,7 +190,7 @@ def _collider_refusal(x, z, y, locked, why_forbidden, names):
     return None
 
 
-def _apply_meek_rules(adjacent, out, ambiguous, names, key):
+def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
     heads = out.heads
 
     def directed(a, b):
@@ -204,6 +204,9 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key):
 
     def why_arrow(a, b):
         """Reason a → b is forced, or None (a — b undirected)."""
+        if why_forbidden(a, b):
+            return None  # the knowledge excludes a → b (only left undirected when it
+            #              excludes both directions, which is reported as a conflict)
         for w in sorted(adjacent[a], key=key):
             if directed(w, a) and b not in adjacent[w] and not_ambiguous(w, a, b):
                 return ("rule 1", f"rule 1: {names[w]} → {names[a]} — {names[b]}, "
