@@ -438,3 +438,34 @@ def test_canvas_mouse_selects_edges_and_nodes(qtbot, window, collider_csv):
     qtbot.mouseClick(canvas.viewport(), Qt.LeftButton, pos=QPoint(far.x(), far.y()))
     assert window.session.selection == ()
     assert not any(isinstance(i, OverlayItem) for i in canvas.scene().selectedItems())
+
+
+def test_dropping_variables_on_a_stage_list(qtbot, window, collider_csv):
+    from gui._qt.panels import _MIME
+    window.open_path(collider_csv)
+    target = window.stages.lists[-1]  # "drop here to add a stage"
+    data = QMimeData()
+    data.setData(_MIME, b"a\nb")
+    event = QDropEvent(QPointF(5, 5), Qt.MoveAction, data, Qt.LeftButton, Qt.NoModifier)
+    target.dropEvent(event)
+    assert window.session.knowledge.stages == (("a", "b"),)
+    pool = window.stages.lists[0]
+    data2 = QMimeData()
+    data2.setData(_MIME, b"b")
+    pool.dropEvent(QDropEvent(QPointF(5, 5), Qt.MoveAction, data2, Qt.LeftButton,
+                              Qt.NoModifier))
+    assert window.session.knowledge.stages == (("a",),)
+    qtbot.wait(10)  # the replaced lists are deleted later, safely
+    assert window.stages.group_names()[1] == ["a"]
+
+
+def test_typing_in_the_alpha_box_does_not_fire_single_key_shortcuts(qtbot, window,
+                                                                      collider_csv):
+    window.open_path(collider_csv)
+    window.session.select_pair("a", "b")
+    window.activateWindow()
+    window.alpha_box.setFocus()
+    window.alpha_box.selectAll()
+    qtbot.keyClicks(window.alpha_box, "LF")
+    qtbot.keyClick(window.alpha_box, Qt.Key_Delete)
+    assert window.session.knowledge.is_empty()
