@@ -47,39 +47,60 @@ class SkeletonOutcome:
     levels: list[dict] = field(default_factory=list)
 
 
+_WEAK_BITS = 16  # resolution of the association ranking: 65,536 steps
+
+
 def _weakness_codes(association: np.ndarray) -> np.ndarray:
-    """``1 - association`` in 2^20 integer steps (int64, n x n): the ranking key of a
+    """``1 - association`` in 2^16 integer steps (int32, n x n): the ranking key of a
     candidate, computed once per search so that ranking a level costs integer gathers only."""
     a = np.clip(np.nan_to_num(np.asarray(association, dtype=float), nan=0.0), 0.0, 1.0)
-    return np.rint((1.0 - a) * (2 ** 20 - 1)).astype(np.int32)
+    return np.rint((1.0 - a) * (2 ** _WEAK_BITS - 1)).astype(np.int32)
 
 
-def _ranked_candidates(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray,
-                       top: int | None = None):
-    """Size-1 candidates of each pair, best first: a row per pair of ``order`` lists first the
-    neighbours of x (without y), then those of y not adjacent to x (without x), each side
-    strongest first (smallest ``max(weakness[x, z], weakness[y, z])``: a separator is usually
-    associated with both), ties by index (= name) order; ``count`` says how many entries are
-    real.
+def _key_layout(n: int):
+    """(dtype, shift): keys are ``((side << 16 | weakness) << shift) | index``; they fit in
+    int32 (half the memory traffic) up to 2^11 variables."""
+    shift = max(11, int(n).bit_length())
+    return (np.int32 if shift + _WEAK_BITS + 2 <= 31 else np.int64), shift
 
-    With ``top``, only the first ``top`` ranks are computed (a linear-time partition, then a
-    small sort): most pairs are separated by one of their first few candidates.
+
+def _candidate_keys(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
+    """Ranking keys of every variable as a size-1 candidate for each pair, and the mask of
+    real candidates.
+
+    A candidate is a neighbour of x (without y), or else of y (without x); the key orders
+    x's side first, then y's, each strongest first (smallest
+    ``max(weakness[x, z], weakness[y, z])``: a separator is usually associated with both),
+    ties by index (= name) order. Keys are distinct integers.
     """
     rows = np.arange(len(pairs))
     side_x = frozen[pairs[:, 0]].copy()
     side_x[rows, pairs[:, 1]] = False
     side_y = frozen[pairs[:, 1]] & ~side_x
     side_y[rows, pairs[:, 0]] = False
-    count = side_x.sum(axis=1) + side_y.sum(axis=1)
     n = frozen.shape[1]
-    shift = max(11, int(n).bit_length())
-    # one distinct integer key per entry: (side, weakness, index); side 0 = x, 1 = y, 2 = none
-    side = (~side_x).view(np.uint8) + (~(side_x | side_y)).view(np.uint8)
-    key = np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
-    key |= side.astype(np.int64) << 21
+    dtype, shift = _key_layout(n)
+    candidate = side_x | side_y
+    # side 0 = x, 1 = y only, 2 = not a candidate
+    side = (~side_x).view(np.uint8) + (~candidate).view(np.uint8)
+    key = np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype, copy=False)
+    key |= side.astype(dtype) << _WEAK_BITS
     key <<= shift
-    key |= np.arange(n, dtype=np.int64)[None, :]
-    if top is not None and top < n:
+    key |= np.arange(n, dtype=dtype)[None, :]
+    return key, candidate
+
+
+def _ranked_candidates(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray,
+                       top: int | None = None):
+    """Size-1 candidates of each pair, best first (see :func:`_candidate_keys`): a row of
+    ``order`` per pair; ``count`` says how many entries of the row are real candidates.
+
+    With ``top``, only the first ``top`` ranks are computed (a linear-time partition, then a
+    small sort): most pairs are separated by one of their first few candidates.
+    """
+    key, candidate = _candidate_keys(pairs, frozen, weakness)
+    count = candidate.sum(axis=1)
+    if top is not None and top < key.shape[1]:
         part = np.argpartition(key, top - 1, axis=1)[:, :top]
         inner = np.argsort(np.take_along_axis(key, part, axis=1), axis=1)
         return np.take_along_axis(part, inner, axis=1), count
@@ -90,14 +111,15 @@ def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
     """For each pair, adj(x)\\{y} and adj(y)\\{x} as lists, strongest candidates first."""
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
-    shift = max(11, int(n).bit_length())
-    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
-            << shift) | np.arange(n, dtype=np.int64)[None, :]
+    dtype, shift = _key_layout(n)
+    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype)
+            << shift) | np.arange(n, dtype=dtype)[None, :]
+    beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
     sides = []
     for a, b in ((0, 1), (1, 0)):
         member = frozen[pairs[:, a]].copy()
         member[rows, pairs[:, b]] = False
-        order = np.argsort(np.where(member, base, np.int64(1) << (shift + 22)), axis=1)
+        order = np.argsort(np.where(member, base, beyond), axis=1)
         counts = member.sum(axis=1)
         sides.append([order[i, :counts[i]].tolist() for i in rows])
     return sides
@@ -124,9 +146,10 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     """
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
-    shift = max(11, int(n).bit_length())
-    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(np.int64)
-            << shift) | np.arange(n, dtype=np.int64)[None, :]
+    dtype, shift = _key_layout(n)
+    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype)
+            << shift) | np.arange(n, dtype=dtype)[None, :]
+    beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
     parts = []
     member_x = None
     for side, (a, b) in enumerate(((0, 1), (1, 0))):
@@ -140,8 +163,7 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
         combos = _combos(width, level)
         if len(pairs) * len(combos) > limit:
             return None
-        order = np.argsort(np.where(member, base, np.int64(1) << (shift + 22)),
-                           axis=1)[:, :width]
+        order = np.argsort(np.where(member, base, beyond), axis=1)[:, :width]
         valid = combos[None, :, -1] < counts[:, None]            # (m, C)
         sets = order[:, combos]                                  # (m, C, k)
         if side == 1:
