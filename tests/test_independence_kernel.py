@@ -229,3 +229,25 @@ def test_nonlinear_search_beats_correlation():
     linear = skeleton_scores(discover(frame, test="fisher-z").to_networkx(), nonlinear_dag())
     assert kernel.f1 >= 0.85
     assert linear.f1 <= kernel.f1 - 0.15
+
+
+def test_test_wise_missing_uses_the_complete_rows_of_each_test():
+    # Test-wise deletion (Tu, Zhang, Kjellström & Zhang 2019): a test with missing cells
+    # equals the same test on the rows complete in its own columns.
+    frame = _chain(300, np.random.default_rng(13))
+    frame.loc[:39, "w"] = np.nan
+    frame.loc[250:, "y"] = np.nan
+    test = KernelCI(frame, missing="test-wise")
+    complete = frame[["x", "y", "z"]].dropna()
+    assert test.test("x", "y", ["z"]).pvalue == pytest.approx(
+        KernelCI(complete).test("x", "y", ["z"]).pvalue, rel=1e-9)
+    assert test.test("x", "w").n == 300
+
+
+def test_search_refuses_text_for_the_kernel_test_in_one_line():
+    frame = _chain(100, np.random.default_rng(14))
+    frame["site"] = np.where(frame["w"] > 0, "north", "south")
+    with pytest.raises(DataValidationError) as info:
+        discover(frame, test="kci")
+    message = str(info.value)
+    assert "column 'site' is not numeric" in message and "\n" not in message
