@@ -47,7 +47,7 @@ def _build_parser() -> argparse.ArgumentParser:
         epilog="example:\n  edgewise discover example_sets/greenhouse/data.csv \\\n"
                "      --knowledge example_sets/greenhouse/knowledge.toml \\\n"
                "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png")
-    d.add_argument("data", help="CSV, TSV or Parquet file, one column per variable")
+    d.add_argument("data", nargs="?", help="CSV, TSV or Parquet file, one column per variable")
     d.add_argument("--test", default="fisher-z", choices=sorted(TEST_NAMES),
                    help="independence test (default: fisher-z)")
     d.add_argument("--alpha", type=float, default=0.05,
@@ -65,6 +65,12 @@ def _build_parser() -> argparse.ArgumentParser:
                         "(default: drop)")
     d.add_argument("--columns", metavar="A,B,...",
                    help="comma-separated columns to include (default: all usable)")
+    d.add_argument("--test-option", action="append", default=[], metavar="NAME=VALUE",
+                   dest="test_option",
+                   help="an option of the chosen test, repeatable (e.g. --test-option "
+                        "seed=3); 'edgewise discover --list-test-options' lists them")
+    d.add_argument("--list-test-options", action="store_true",
+                   help="list every test's options and exit")
     d.add_argument("--jobs", type=int, default=1, metavar="N",
                    help="worker processes for tests that are not vectorised (default: 1)")
     d.add_argument("--out", metavar="FILE.json", help="write the result JSON here")
@@ -197,6 +203,17 @@ def _cmd_discover(args) -> int:
     from .knowledge import read_knowledge
     from .search import discover
 
+    if args.list_test_options:
+        from .independence import TEST_NAMES, TEST_OPTIONS
+        for name, desc in TEST_NAMES.items():
+            print(f"{name}: {desc}")
+            for option, text in TEST_OPTIONS.get(name, {}).items():
+                print(f"    {option}: {text}")
+        return 0
+    if args.data is None:
+        raise CommandError("give a data file (CSV, TSV or Parquet); see 'edgewise discover "
+                           "--help'")
+    test_options = _parse_test_options(args.test_option, args.test)
     outputs = {
         "--out": _output_path(args.out, "--out", [".json"]),
         "--dot": _output_path(args.dot, "--dot", [".dot", ".gv"]),
@@ -222,7 +239,7 @@ def _cmd_discover(args) -> int:
             result = discover(dataset, test=args.test, alpha=args.alpha,
                               max_depth=args.max_depth, knowledge=knowledge,
                               collider_rule=args.collider_rule, executor=executor,
-                              progress=progress)
+                              progress=progress, test_options=test_options or None)
         finally:
             progress.close()
     if outputs["--out"]:
@@ -243,6 +260,31 @@ def _cmd_discover(args) -> int:
             print("\nWrote: " + ", ".join(str(p) for p in outputs.values() if p is not None))
         print("\n" + CAUTION)
     return 0
+
+
+def _parse_test_options(items, test) -> dict:
+    """``["seed=3", "null=simulated"]`` -> ``{"seed": 3, "null": "simulated"}``."""
+    from .independence import TEST_OPTIONS
+    allowed = TEST_OPTIONS.get(test, {})
+    out = {}
+    for item in items:
+        name, sep, raw = item.partition("=")
+        name = name.strip()
+        if not sep or not name:
+            raise CommandError(f"--test-option {item!r}: write NAME=VALUE, e.g. seed=3")
+        if name not in allowed:
+            choices = ", ".join(allowed) or "none"
+            raise CommandError(f"--test-option {name}: the {test} test has no such option "
+                               f"(its options: {choices})")
+        value: object = raw.strip()
+        for convert in (int, float):
+            try:
+                value = convert(raw)
+                break
+            except ValueError:
+                continue
+        out[name] = value
+    return out
 
 
 def _cmd_simulate(args) -> int:

@@ -111,8 +111,18 @@ class SearchSettings:
     max_depth: int | None = None
     collider_rule: str = "standard"
     missing: str = "drop"
+    test_options: tuple = ()  # (name, value) pairs given to the test, sorted by name
 
     def __post_init__(self):
+        options = self.test_options
+        if isinstance(options, dict):
+            options = options.items()
+        try:
+            options = tuple(sorted((str(k), v) for k, v in options))
+        except (TypeError, ValueError):
+            raise SettingsError("The 'test_options' parameter must be a mapping of option "
+                                f"names to values. Got {self.test_options!r} instead.") from None
+        object.__setattr__(self, "test_options", options)
         # Test names are checked against the registry where a name is turned into a test;
         # here any test object's name is accepted (custom tests have their own).
         if not isinstance(self.test, str) or not self.test:
@@ -125,10 +135,12 @@ class SearchSettings:
             object.__setattr__(self, "max_depth", int(self.max_depth))
 
     def to_dict(self) -> dict:
-        return asdict(self)
+        out = asdict(self)
+        out["test_options"] = dict(self.test_options)
+        return out
 
     @classmethod
     def from_dict(cls, values: dict) -> "SearchSettings":
         known = {k: values[k] for k in ("test", "alpha", "max_depth", "collider_rule",
-                                        "missing") if k in values}
+                                        "missing", "test_options") if k in values}
         return cls(**known)

@@ -111,7 +111,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         raise SettingsError(f"The 'test' parameter of discover must be a test name or an "
                             f"IndependenceTest. Got {type(test).__name__} instead.")
     settings = SearchSettings(test=test_name, alpha=alpha, max_depth=max_depth,
-                              collider_rule=collider_rule, missing=missing)
+                              collider_rule=collider_rule, missing=missing,
+                              test_options=dict(test_options or {}))
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
@@ -336,6 +337,13 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
                     sha256=dataset.sha256, source=dataset.source, missing=dataset.missing,
                     excluded=dict(dataset.excluded))
         notes = list(dataset.notes) + notes
+    inner = getattr(test_obj, "inner", test_obj)  # NameOrderedTest wraps a test
+    describe = getattr(inner, "describe_tests", None)
+    if describe is not None:  # e.g. which test decided each pair ('auto'), skipped tests (G²)
+        notes = list(notes) + list(describe(tests))
+    description = getattr(inner, "description", None)
+    if description:
+        notes = list(notes) + [str(description)]
     return SearchResult(
         variables=display, settings=settings, knowledge=knowledge, edges=tuple(edges),
         removed=removed, tests=tests,
