@@ -937,7 +937,7 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
         raise _fail(label, f"a search needs at least 2 variables, but {have}{left}; "
                            f"select more columns")
 
-    floats = {c for c in dataset.variables if frame[c].dtype == np.float64}
+    floats = {c for c, t in zip(frame.columns, frame.dtypes) if t == np.float64}
     if fisher:
         for column in dataset.variables:
             if column in floats:

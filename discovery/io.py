@@ -46,7 +46,8 @@ BRICK = "#B5482F"
 TEAL = "#1F6F78"
 STAGE_FILL = "#ECE9E2"
 
-CAUTION = "Hypotheses from data under stated assumptions — see report"
+CAUTION = ("Hypotheses from data, sound only under stated assumptions (no hidden common causes, "
+           "no feedback, faithfulness) — see the result file and README")
 
 _GRAPHML_NS = "http://graphml.graphdrawing.org/xmlns"
 

@@ -139,13 +139,12 @@ class FisherZ(IndependenceTest):
 
 
 def _correlation(values: np.ndarray) -> np.ndarray:
-    centred = values - values.mean(axis=0)
-    scale = np.sqrt((centred ** 2).sum(axis=0))
     with np.errstate(invalid="ignore", divide="ignore"):
-        centred = centred / scale
-    corr = centred.T @ centred
+        corr = np.corrcoef(values, rowvar=False)
+    corr = np.atleast_2d(corr)
+    np.clip(corr, -1.0, 1.0, out=corr)
     np.fill_diagonal(corr, 1.0)
-    return np.clip(corr, -1.0, 1.0)
+    return corr
 
 
 def _partial_correlations(corr: np.ndarray, idx: np.ndarray) -> np.ndarray:

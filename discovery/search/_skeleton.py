@@ -90,21 +90,17 @@ def _candidate_keys(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray)
     return key, candidate
 
 
-def _ranked_candidates(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray,
-                       top: int | None = None):
-    """Size-1 candidates of each pair, best first (see :func:`_candidate_keys`): a row of
-    ``order`` per pair; ``count`` says how many entries of the row are real candidates.
-
-    With ``top``, only the first ``top`` ranks are computed (a linear-time partition, then a
-    small sort): most pairs are separated by one of their first few candidates.
-    """
-    key, candidate = _candidate_keys(pairs, frozen, weakness)
-    count = candidate.sum(axis=1)
+def _rank_rows(key: np.ndarray, top: int | None) -> np.ndarray:
+    """Columns of each row of ``key`` in ascending key order: all of them, or the first
+    ``top`` (one pass for ``top=1``, a linear-time partition and a small sort otherwise).
+    Most pairs are separated by one of their first few candidates."""
+    if top == 1:
+        return key.argmin(axis=1)[:, None]
     if top is not None and top < key.shape[1]:
         part = np.argpartition(key, top - 1, axis=1)[:, :top]
         inner = np.argsort(np.take_along_axis(key, part, axis=1), axis=1)
-        return np.take_along_axis(part, inner, axis=1), count
-    return np.argsort(key, axis=1), count
+        return np.take_along_axis(part, inner, axis=1)
+    return np.argsort(key, axis=1)
 
 
 def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
@@ -286,9 +282,12 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             """Record the batch; return the owners that found a separating set."""
             out.log.append((idx, p))
             hits = np.flatnonzero(p > alpha)
-            # first independent row of each owner (an owner's rows are contiguous, in order)
-            hit_owners, first = np.unique(owner_of_row[hits], return_index=True)
-            chosen = hits[first]
+            if owner_of_row is None:  # one row per pair (level 0)
+                hit_owners = chosen = hits
+            else:
+                # first independent row of each owner (an owner's rows are contiguous)
+                hit_owners, first = np.unique(owner_of_row[hits], return_index=True)
+                chosen = hits[first]
             rows = idx[chosen]
             pairs = list(zip(rows[:, 0].tolist(), rows[:, 1].tolist()))
             sets = ([()] * len(pairs) if rows.shape[1] == 2
@@ -316,7 +315,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             idx = pairs.copy()
             p = np.asarray(pvalues(idx), dtype=float)
             done = len(idx)
-            settle(idx, p, np.arange(len(pairs)))
+            settle(idx, p, None)
             if association is None:
                 association = np.zeros((n_vars, n_vars))
                 association[idx[:, 0], idx[:, 1]] = 1.0 - np.nan_to_num(p, nan=1.0)
@@ -329,11 +328,16 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             # Candidates are ranked per pair in blocks (a pairs x variables matrix each), and
             # round r sends every still-open pair its candidates ranked lo..hi-1.
             block = max(1, 4_000_000 // max(n_vars, 1))
-            first_ranks = 11  # rounds [0,1), [1,3), [3,11) need only the 11 best candidates
+            # Ranking is done in stages: the best candidate of every pair (one pass), then the
+            # next ten for the pairs still open, then all for the few left.
+            tops = [1, 11, None]
             for start in range(0, len(pairs), block):
                 sub = pairs[start:start + block]
                 gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
-                order, count = _ranked_candidates(sub, frozen, weakness, top=first_ranks)
+                key, candidate = _candidate_keys(sub, frozen, weakness)
+                count = candidate.sum(axis=1)
+                order = _rank_rows(key, tops[0])
+                stage = 0
                 ranked = order.shape[1]
                 active = np.flatnonzero(count > 0)
                 lo, hi = 0, 1
@@ -341,9 +345,11 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     if cancelled is not None and cancelled():
                         raise SearchCancelled("the search was stopped before it finished")
                     if hi > ranked and ranked < n_vars:
-                        # the few pairs still open need their whole ranking
+                        # rank further, for the pairs still open only
+                        stage += 1
                         sub, gid, count = sub[active], gid[active], count[active]
-                        order, _ = _ranked_candidates(sub, frozen, weakness)
+                        key = key[active]
+                        order = _rank_rows(key, tops[stage])
                         ranked = order.shape[1]
                         active = np.arange(len(sub))
                     cols = order[active, lo:hi]
@@ -363,7 +369,8 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     if progress is not None:
                         progress({"phase": "skeleton", "level": level, "done": done,
                                   "planned": total})
-        elif (flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
+        elif len(pairs) >= 100 and (
+                flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
             # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
             all_idx, all_owner, all_rank = flat
             active = np.ones(len(pairs), dtype=bool)
