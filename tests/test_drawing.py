@@ -155,7 +155,7 @@ def test_knowledge_overlay(result):
 def test_caption_and_caution(result):
     art = by_gid(draw_result(result, title="Smoking"))
     assert art["caption"].get_text() == "Edgewise · test d-separation · α 0.05"
-    assert "Hypotheses from data under stated assumptions" in art["caution"].get_text()
+    assert "sound only under stated assumptions" in art["caution"].get_text()
     assert art["title"].get_text() == "Smoking"
 
 
