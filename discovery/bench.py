@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["run_benchmarks", "search_benchmarks", "machine_description"]
+__all__ = ["run_benchmarks", "search_benchmarks", "machine_description", "replace_section"]
 
 SECTION = "## Search"
 
@@ -191,15 +191,17 @@ def run_benchmarks(*, quick: bool = False, write: str | None = None) -> str:
     section = format_search(fig) + f"\nMachine: {machine}. Measured {time.strftime('%Y-%m-%d')}" \
         + (" (quick sizes)" if quick else "") + ".\n"
     if write:
-        _replace_section(Path(write), section)
+        replace_section(Path(write), section)
     extras = _extra_benchmarks(quick)
     return section + ("\n" + "\n".join(extras) if extras else "")
 
 
-def _replace_section(path: Path, section: str) -> None:
-    """Replace the '## Search' section of a Markdown file (or append it)."""
+def replace_section(path: Path, section: str) -> None:
+    """Replace the Markdown section whose heading is ``section``'s first line (or append it);
+    each benchmark owns one section of docs/benchmarks.md."""
+    heading = section.splitlines()[0]
     text = path.read_text(encoding="utf-8") if path.exists() else "# Benchmarks\n\n"
-    pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
+    pattern = re.compile(rf"^{re.escape(heading)}\n.*?(?=^## |\Z)", re.S | re.M)
     if pattern.search(text):
         text = pattern.sub(lambda m: section + "\n", text, count=1)
     else:

@@ -41,7 +41,7 @@ from scipy.stats import chi2
 from ..exceptions import DataValidationError
 from ._base import IndependenceTest
 from ._tabular import (as_frame, check_missing_policy, check_real, check_single_levels,
-                       fingerprint, kinds_of, reject_unknown)
+                       fingerprint, kinds_of, reject_unknown, one_at_a_time)
 
 __all__ = ["GSquared", "g_squared_table"]
 
@@ -187,12 +187,7 @@ class GSquared(IndependenceTest):
 
     # -- tests -------------------------------------------------------------------------------
     def _batch(self, triples):
-        m = len(triples)
-        stat = np.full(m, np.nan)
-        pval = np.full(m, np.nan)
-        for i, (x, y, s) in enumerate(triples):
-            stat[i], pval[i] = self._one(x, y, tuple(s))
-        return stat, pval
+        return one_at_a_time(self._one, triples)
 
     def _one(self, x, y, s):
         if self.skipped_by_rule(x, y, s):

@@ -47,7 +47,7 @@ from scipy.stats import chi2
 from ..exceptions import DegenerateDataWarning
 from ._base import IndependenceTest
 from ._tabular import (as_frame, check_missing_policy, check_single_levels, fingerprint,
-                       kinds_of, reject_unknown, numeric_values)
+                       kinds_of, reject_unknown, numeric_values, one_at_a_time)
 
 __all__ = ["MixedLR"]
 
@@ -161,11 +161,7 @@ class MixedLR(IndependenceTest):
 
     # -- tests -------------------------------------------------------------------------------
     def _batch(self, triples):
-        m = len(triples)
-        stat = np.full(m, np.nan)
-        pval = np.full(m, np.nan)
-        for i, (x, y, s) in enumerate(triples):
-            stat[i], pval[i] = self._one(x, y, tuple(s))
+        stat, pval = one_at_a_time(self._one, triples)
         bad = int(np.isnan(pval).sum())
         if bad:
             warnings.warn(f"{bad} mixed-data test(s) had too few rows for their regressions; "

@@ -152,3 +152,13 @@ def numeric_values(frame: pd.DataFrame, owner: str, *, hint: str) -> np.ndarray:
         raise DataValidationError(f"{owner}: column {column!r} holds infinite values; replace "
                                   f"them with numbers or mark them missing")
     return out
+
+
+def one_at_a_time(one, triples) -> tuple[np.ndarray, np.ndarray]:
+    """Statistics and p-values of a batch answered by ``one(x, y, S)`` test by test (tests
+    whose work per triple cannot be stacked, such as stratified tables or regressions)."""
+    stat = np.full(len(triples), np.nan)
+    pval = np.full(len(triples), np.nan)
+    for i, (x, y, s) in enumerate(triples):
+        stat[i], pval[i] = one(x, y, tuple(s))
+    return stat, pval

@@ -103,22 +103,26 @@ def _rank_rows(key: np.ndarray, top: int | None) -> np.ndarray:
     return np.argsort(key, axis=1)
 
 
-def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
-    """For each pair, adj(x)\\{y} and adj(y)\\{x} as lists, strongest candidates first."""
+def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
+    """For each side (x, then y) of every pair: the neighbour mask (partner excluded), the
+    neighbours' count, and the columns ranked strongest first (ties by index = name)."""
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
     dtype, shift = _key_layout(n)
     base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype)
             << shift) | np.arange(n, dtype=dtype)[None, :]
     beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
-    sides = []
     for a, b in ((0, 1), (1, 0)):
         member = frozen[pairs[:, a]].copy()
         member[rows, pairs[:, b]] = False
-        order = np.argsort(np.where(member, base, beyond), axis=1)
         counts = member.sum(axis=1)
-        sides.append([order[i, :counts[i]].tolist() for i in rows])
-    return sides
+        yield member, counts, np.argsort(np.where(member, base, beyond), axis=1)
+
+
+def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
+    """For each pair, adj(x)\\{y} and adj(y)\\{x} as lists, strongest candidates first."""
+    return [[order[i, :counts[i]].tolist() for i in range(len(pairs))]
+            for _, counts, order in _side_orders(pairs, frozen, weakness)]
 
 
 _COMBOS: dict[tuple[int, int], np.ndarray] = {}
@@ -141,17 +145,9 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     combinations order of the ranked neighbours (strongest first), as :func:`_candidate_sets`.
     """
     rows = np.arange(len(pairs))
-    n = frozen.shape[1]
-    dtype, shift = _key_layout(n)
-    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype)
-            << shift) | np.arange(n, dtype=dtype)[None, :]
-    beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
     parts = []
     member_x = None
-    for side, (a, b) in enumerate(((0, 1), (1, 0))):
-        member = frozen[pairs[:, a]].copy()
-        member[rows, pairs[:, b]] = False
-        counts = member.sum(axis=1)
+    for side, (member, counts, order) in enumerate(_side_orders(pairs, frozen, weakness)):
         width = int(counts.max()) if len(counts) else 0
         if width < level:
             member_x = member if side == 0 else member_x
@@ -159,7 +155,7 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
         combos = _combos(width, level)
         if len(pairs) * len(combos) > limit:
             return None
-        order = np.argsort(np.where(member, base, beyond), axis=1)[:, :width]
+        order = order[:, :width]
         valid = combos[None, :, -1] < counts[:, None]            # (m, C)
         sets = order[:, combos]                                  # (m, C, k)
         if side == 1:

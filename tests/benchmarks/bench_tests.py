@@ -167,13 +167,7 @@ def format_section(figures: dict, machine: str, quick: bool) -> str:
 
 def write_section(path: Path, section: str) -> None:
     """Replace the '## Independence tests' section of ``path`` (or append it)."""
-    text = path.read_text(encoding="utf-8") if path.exists() else "# Benchmarks\n\n"
-    pattern = re.compile(rf"^{re.escape(SECTION)}\n.*?(?=^## |\Z)", re.S | re.M)
-    if pattern.search(text):
-        text = pattern.sub(lambda m: section + "\n", text, count=1)
-    else:
-        text = text.rstrip("\n") + "\n\n" + section
-    path.write_text(text, encoding="utf-8")
+    replace_section(path, section)
 
 
 def main(argv=None) -> dict:
@@ -193,7 +187,7 @@ def main(argv=None) -> dict:
     for key, value in figures.items():
         print(f"{key}: {value:.4g}" if isinstance(value, float) else f"{key}: {value}")
     if args.write:
-        from discovery.bench import machine_description
+        from discovery.bench import replace_section, machine_description
         write_section(Path(args.write), format_section(figures, machine_description(),
                                                         args.quick))
     return figures
