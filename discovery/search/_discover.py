@@ -178,6 +178,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     def why_forbidden(a, b):
         return knowledge.is_direction_forbidden(names[a], names[b])
 
+    if not (knowledge.forbidden_directions or knowledge.stages):
+        why_forbidden = None  # nothing can forbid a direction: skip the checks
+
     separating_sets_of = None
     if settings.collider_rule != "standard":
         separating_sets_of = _separating_sets_finder(
@@ -278,11 +281,19 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     pair_key = np.concatenate([b[0][:, 0] * len(names) + b[0][:, 1] for b in skeleton.log]) \
         if skeleton.log else np.empty(0, dtype=np.intp)
     log_p = np.concatenate([b[1] for b in skeleton.log]) if skeleton.log else np.empty(0)
-    keys, ids = np.unique(pair_key, return_inverse=True)
-    n_tests = np.bincount(ids, minlength=len(keys))
-    max_p = np.full(len(keys), -np.inf)
-    finite = ~np.isnan(log_p)
-    np.maximum.at(max_p, ids[finite], log_p[finite])
+    n = len(names)
+    if n * n <= 4_000_000:  # dense per-pair tallies: no sorting of the log
+        keys = None
+        n_tests = np.bincount(pair_key, minlength=n * n)
+        max_p = np.full(n * n, -np.inf)
+        finite = ~np.isnan(log_p)
+        np.maximum.at(max_p, pair_key[finite], log_p[finite])
+    else:
+        keys, ids = np.unique(pair_key, return_inverse=True)
+        n_tests = np.bincount(ids, minlength=len(keys))
+        max_p = np.full(len(keys), -np.inf)
+        finite = ~np.isnan(log_p)
+        np.maximum.at(max_p, ids[finite], log_p[finite])
     locked_pairs = knowledge.required_adjacent()
     heads = orientation.heads
     edges = []
@@ -290,8 +301,11 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         for y in skeleton.adjacent[x]:
             if key(y) < key(x):
                 continue
-            at = int(np.searchsorted(keys, x * len(names) + y))
-            k = at if at < len(keys) and keys[at] == x * len(names) + y else None
+            if keys is None:
+                k = x * n + y if n_tests[x * n + y] else None
+            else:
+                at = int(np.searchsorted(keys, x * n + y))
+                k = at if at < len(keys) and keys[at] == x * n + y else None
             mp = -np.inf if k is None else max_p[k]
             stats = dict(max_pvalue=float(mp) if np.isfinite(mp) else float("nan"),
                          tests=0 if k is None else int(n_tests[k]),

@@ -71,6 +71,7 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     unseparated : iterable of (int, int)
         Forbidden pairs for which no separating set was found: their triples stay undecided.
     """
+    check_knowledge = why_forbidden is not None or bool(locked_directions)
     why_forbidden = why_forbidden or (lambda a, b: None)
     out = OrientationOutcome()
     locked = set(locked_directions)
@@ -81,7 +82,7 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
         return "{" + ", ".join(names[v] for v in sorted(s, key=key)) + "}"
 
     # 1. knowledge -------------------------------------------------------------------------
-    for x in sorted(range(len(adjacent)), key=key):
+    for x in (sorted(range(len(adjacent)), key=key) if check_knowledge else ()):
         for y in sorted(adjacent[x], key=key):
             if key(y) < key(x):
                 continue
@@ -120,7 +121,8 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
             decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
                                          names, name_set)
             if decision == "collider":
-                refusal = _collider_refusal(x, z, y, locked, why_forbidden, names)
+                refusal = (_collider_refusal(x, z, y, locked, why_forbidden, names)
+                           if check_knowledge else None)
                 if refusal:
                     decision = "refused"
                     reason = f"{reason}; refused: {refusal}"
@@ -145,7 +147,8 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
                                  "ends; marked contested")
 
     # 3. Meek's rules to a fixed point -----------------------------------------------------
-    _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden)
+    _apply_meek_rules(adjacent, out, ambiguous, names, key,
+                      why_forbidden if check_knowledge else None)
     return out
 
 
@@ -204,7 +207,7 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
 
     def why_arrow(a, b):
         """Reason a → b is forced, or None (a — b undirected)."""
-        if why_forbidden(a, b):
+        if why_forbidden is not None and why_forbidden(a, b):
             return None  # the knowledge excludes a → b (only left undirected when it
             #              excludes both directions, which is reported as a conflict)
         for w in sorted(adjacent[a], key=key):
@@ -231,14 +234,14 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
                                       f"{names[b]} not adjacent")
         return None
 
+    open_pairs = [(a, b) for a in range(len(adjacent)) for b in adjacent[a] if undirected(a, b)]
     while True:
+        open_pairs = [(a, b) for a, b in open_pairs if undirected(a, b)]
         found = {}
-        for a in range(len(adjacent)):
-            for b in adjacent[a]:
-                if undirected(a, b):
-                    reason = why_arrow(a, b)
-                    if reason:
-                        found[(a, b)] = reason
+        for a, b in open_pairs:
+            reason = why_arrow(a, b)
+            if reason:
+                found[(a, b)] = reason
         if not found:
             return
         progressed = False

@@ -171,8 +171,8 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
             np.empty(0, np.intp)
     owner = np.concatenate([p[0] for p in parts])
     sets = np.concatenate([p[1] for p in parts])
-    side = np.concatenate([np.full(len(p[0]), p[2]) for p in parts])
-    order = np.lexsort((np.arange(len(owner)), side, owner))  # pair, then x side, y side
+    # each part is in pair order already; a stable sort by pair keeps x's side before y's
+    order = np.argsort(owner, kind="stable")
     owner, sets = owner[order], np.sort(sets[order], axis=1)
     starts = np.searchsorted(owner, rows)
     rank = np.arange(len(owner)) - starts[owner]
