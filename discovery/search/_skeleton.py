@@ -74,16 +74,17 @@ def _candidate_keys(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray)
     ties by index (= name) order. Keys are distinct integers.
     """
     rows = np.arange(len(pairs))
-    side_x = frozen[pairs[:, 0]].copy()
+    side_x = np.take(frozen, pairs[:, 0], axis=0)  # (np.take: a fast row gather)
     side_x[rows, pairs[:, 1]] = False
-    side_y = frozen[pairs[:, 1]] & ~side_x
+    side_y = np.take(frozen, pairs[:, 1], axis=0) & ~side_x
     side_y[rows, pairs[:, 0]] = False
     n = frozen.shape[1]
     dtype, shift = _key_layout(n)
     candidate = side_x | side_y
     # side 0 = x, 1 = y only, 2 = not a candidate
     side = (~side_x).view(np.uint8) + (~candidate).view(np.uint8)
-    key = np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype, copy=False)
+    key = np.maximum(np.take(weakness, pairs[:, 0], axis=0),
+                     np.take(weakness, pairs[:, 1], axis=0)).astype(dtype, copy=False)
     key |= side.astype(dtype) << _WEAK_BITS
     key <<= shift
     key |= np.arange(n, dtype=dtype)[None, :]
@@ -109,11 +110,12 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
     dtype, shift = _key_layout(n)
-    base = (np.maximum(weakness[pairs[:, 0]], weakness[pairs[:, 1]]).astype(dtype)
+    base = (np.maximum(np.take(weakness, pairs[:, 0], axis=0),
+                       np.take(weakness, pairs[:, 1], axis=0)).astype(dtype)
             << shift) | np.arange(n, dtype=dtype)[None, :]
     beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
     for a, b in ((0, 1), (1, 0)):
-        member = frozen[pairs[:, a]].copy()
+        member = np.take(frozen, pairs[:, a], axis=0)
         member[rows, pairs[:, b]] = False
         counts = member.sum(axis=1)
         yield member, counts, np.argsort(np.where(member, base, beyond), axis=1)
