@@ -179,3 +179,39 @@ def test_result_from_dict_accepts_its_own_output(sim15):
     _, frame = sim15
     result = discover(frame, max_depth=1)
     assert SearchResult.from_dict(result.to_dict()).edges == result.edges
+
+
+def test_slow_tests_report_progress_and_stop_within_a_level():
+    # A test that is not vectorised (like the kernel tests) is answered in pieces, so that a
+    # long level shows progress and a stop request is honoured before the level ends.
+    from discovery.independence import IndependenceTest
+
+    class Slow(IndependenceTest):
+        name = "slow"
+        vectorised = False
+
+        def __init__(self, n):
+            self.variables = tuple(f"v{i:02d}" for i in range(n))
+            self.calls = 0
+
+        def settings_key(self):
+            return ("slow", id(self))
+
+        def _batch(self, triples):
+            self.calls += 1
+            p = np.ones(len(triples))
+            return p, p
+
+    events = []
+    test = Slow(20)  # 190 pairs at level 0
+    discover(None, test=test, progress=events.append)
+    level0 = [e for e in events if e["level"] == 0]
+    assert len(level0) >= 3 and level0[-1]["done"] == 190
+    seen = []
+
+    def stop_after_first_piece():
+        seen.append(1)
+        return len(seen) > 1
+
+    with pytest.raises(SearchCancelled):
+        discover(None, test=Slow(20), cancel=stop_after_first_piece)

@@ -171,7 +171,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     t0 = time.perf_counter()
     skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
                                 locked=locked, forbidden=forbidden, progress=progress,
-                                cancelled=cancelled, association=test_obj.association())
+                                cancelled=cancelled, association=test_obj.association(),
+                                batch_limit=None if test_obj.vectorised
+                                else 64 * max(1, getattr(executor, "jobs", 1)))
     t1 = time.perf_counter()
     rank = np.arange(len(names))
 

@@ -209,7 +209,8 @@ def _count_sets(pairs: np.ndarray, frozen: np.ndarray, degree: np.ndarray,
 
 def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=None,
                      locked=(), forbidden=(), progress=None, cancelled=None,
-                     association: np.ndarray | None = None) -> SkeletonOutcome:
+                     association: np.ndarray | None = None,
+                     batch_limit: int | None = None) -> SkeletonOutcome:
     """Run the order-independent adjacency search.
 
     Parameters
@@ -230,6 +231,9 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
         Called with a dict ``{"phase", "level", "done", "planned"}`` after each batch.
     cancelled : callable, optional
         Returns True when the search must stop; checked between batches.
+    batch_limit : int, optional
+        Send at most this many tests at once (for slow tests: progress is reported and the
+        cancel flag checked between the pieces of a large batch). None: no limit.
     association : array, optional
         A symmetric matrix of association strengths (e.g. absolute correlations) used to try
         the most promising conditioning variables first; by default ``1 - p`` of the
@@ -276,6 +280,21 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
         done = 0
         removed_now = []
 
+        def answer(idx):
+            """p-values of a batch, in pieces of at most ``batch_limit`` tests."""
+            if batch_limit is None or len(idx) <= batch_limit:
+                return np.asarray(pvalues(idx), dtype=float)
+            out_p = np.empty(len(idx))
+            for a in range(0, len(idx), batch_limit):
+                if cancelled is not None and cancelled():
+                    raise SearchCancelled("the search was stopped before it finished")
+                out_p[a:a + batch_limit] = pvalues(idx[a:a + batch_limit])
+                if progress is not None:
+                    progress({"phase": "skeleton", "level": level,
+                              "done": done + min(a + batch_limit, len(idx)),
+                              "planned": total})
+            return out_p
+
         def settle(idx, p, owner_of_row):
             """Record the batch; return the owners that found a separating set."""
             out.log.append((idx, p))
@@ -311,7 +330,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             raise SearchCancelled("the search was stopped before it finished")
         if level == 0:
             idx = pairs.copy()
-            p = np.asarray(pvalues(idx), dtype=float)
+            p = answer(idx)
             done = len(idx)
             settle(idx, p, None)
             if association is None:
@@ -355,7 +374,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     local = np.broadcast_to(active[:, None], cols.shape)[valid]
                     z = cols[valid]
                     idx = np.column_stack([sub[local, 0], sub[local, 1], z])
-                    p = np.asarray(pvalues(idx), dtype=float)
+                    p = answer(idx)
                     done += len(idx)
                     found = settle(idx, p, gid[local])
                     still = count[active] > hi
@@ -380,7 +399,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 if not take.any():
                     break
                 idx, owner = all_idx[take], all_owner[take]
-                p = np.asarray(pvalues(idx), dtype=float)
+                p = answer(idx)
                 done += len(idx)
                 found = settle(idx, p, owner)
                 active[found] = False
@@ -411,7 +430,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     break
                 idx = np.asarray(rows, dtype=np.intp).reshape(len(owner_list), level + 2)
                 owner = np.asarray(owner_list)
-                p = np.asarray(pvalues(idx), dtype=float)
+                p = answer(idx)
                 done += len(idx)
                 found = set(settle(idx, p, owner).tolist())
                 active = [o for o in full if o not in found]
