@@ -5,13 +5,19 @@ tested for ``x ⟂ y | S`` with ``S`` of size ``l`` drawn from the neighbours of
 ``y``) *as they stood when the level began*; a pair found independent is removed at the end of
 the level and ``S`` is recorded as its separating set. Freezing the neighbourhoods for a level
 makes the skeleton independent of the order in which variables or pairs are visited (Colombo &
-Maathuis 2014, "Order-independent constraint-based causal structure learning", JMLR 15). The
-separating set kept for a pair is the first independent one in an enumeration ordered by
-variable *name*, so the recorded sets do not depend on column order either.
+Maathuis 2014, "Order-independent constraint-based causal structure learning", JMLR 15).
 
-Each level is sent to the independence test as batches: every pair gets its next few candidate
-sets, the batch is answered at once, pairs that found a separating set stop, the rest continue
-with larger chunks.
+The separating set kept for a pair is the first independent one in a fixed enumeration:
+subsets of x's neighbours before y's, the candidates most associated with both x and y first
+(the test's association matrix, e.g. absolute correlations, or ``1 - p`` of the unconditional
+tests), ties broken by variable *name*. Variables are indexed in name order, so neither the
+sets recorded nor the tests run depend on column order. The ranking changes only which valid
+separating set is found first and how many tests that takes, never which pairs are removed.
+
+Each level is sent to the independence test as batches: every pair gets its next candidate
+sets (its best one, then 2, 8, 32, ... more), the batch is answered at once, pairs that found
+a separating set stop, the rest continue. Level 1 and the larger higher levels generate their
+candidates as arrays.
 
 Knowledge enters here: forbidden pairs are never adjacent (they are not neighbours of anyone)
 but their separating set is still searched for, since collider decisions over them need it;
