@@ -275,13 +275,13 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             # a pair needs a neighbour (besides its partner) on either side to be tested
             room = np.maximum(degree[pairs[:, 0]], degree[pairs[:, 1]]) - \
                 frozen[pairs[:, 0], pairs[:, 1]]
-            pairs = pairs[room >= level]
-            sizes = _count_sets(pairs, frozen, degree, level)
-        keep = sizes > 0
-        pairs, sizes = pairs[keep], sizes[keep]
+            pairs = pairs[room >= level]  # exactly the pairs with a candidate set
+            # the number of candidate sets is needed only to report progress
+            sizes = _count_sets(pairs, frozen, degree, level) if progress is not None \
+                else None
         if not len(pairs):
             break
-        total = int(sizes.sum())
+        total = int(sizes.sum()) if sizes is not None else 0
         level_started = time.perf_counter()
         done = 0
         removed_now = []
