@@ -385,7 +385,7 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop") -> Da
     label = str(path)
     _check_policy(missing, label)
     file = Path(path)
-    raw = _read_bytes(file, label)
+    raw = read_input_bytes(file, label)
     digest = hashlib.sha256(raw).hexdigest()
     suffix = file.suffix.lower()
     if suffix in _PARQUET_SUFFIXES:
@@ -408,20 +408,25 @@ def _check_policy(missing, label: str) -> None:
                            f"{missing!r}; pick one of those")
 
 
-def _read_bytes(file: Path, label: str) -> bytes:
+def read_input_bytes(file: Path, label: str, *, what: str = "a CSV, TSV or Parquet file",
+                     allow_empty: bool = False) -> bytes:
+    """The bytes of an input file, or one clear DataValidationError saying why not.
+
+    Shared by every reader of user files (tables here, known diagrams in :mod:`discovery.io`);
+    the file is only read, never changed.
+    """
     try:
-        raw = file.read_bytes()
+        raw = Path(file).read_bytes()
     except FileNotFoundError:
         raise _fail(label, "file not found; check the path and the working folder") from None
     except IsADirectoryError:
-        raise _fail(label, "is a folder, not a file; give the path of a CSV, TSV or "
-                           "Parquet file") from None
+        raise _fail(label, f"is a folder, not a file; give the path of {what}") from None
     except PermissionError:
         raise _fail(label, "permission denied; check that you may read the file") from None
     except OSError as err:
         raise _fail(label, f"cannot be read ({err.strerror or err}); check the path "
                            f"and the disk") from None
-    if not raw:
+    if not raw and not allow_empty:
         raise _fail(label, "the file is empty (0 bytes); export the table again with a "
                            "header line and at least one row")
     return raw

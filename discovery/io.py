@@ -34,6 +34,7 @@ from pathlib import Path
 
 import networkx as nx
 
+from .data import read_input_bytes
 from .exceptions import DataValidationError, DiscoveryError
 from .result import ASSUMPTIONS, SearchResult
 
@@ -279,17 +280,7 @@ def _fail(label: str, message: str) -> DataValidationError:
 
 
 def _read_text(path, label: str) -> str:
-    file = Path(path)
-    try:
-        raw = file.read_bytes()
-    except FileNotFoundError:
-        raise _fail(label, "file not found; check the path and the working folder") from None
-    except IsADirectoryError:
-        raise _fail(label, "is a folder, not a file; give the path of the diagram "
-                           "file") from None
-    except OSError as err:
-        raise _fail(label, f"cannot be read ({err.strerror or err}); check the "
-                           "permissions") from None
+    raw = read_input_bytes(path, label, what="the diagram file", allow_empty=True)
     try:
         return raw.decode("utf-8-sig")
     except UnicodeDecodeError as err:

@@ -612,23 +612,22 @@ class Session:
 
     def undo(self) -> bool:
         """Undo the last knowledge edit or layout move."""
-        if not self._undo:
-            return False
-        command = self._undo.pop()
-        self._redo.append(command)
-        self.update({k: before for k, (before, _) in command.changes.items()})
-        self._sync_history()
-        self.append_log(f"undo: {command.label}")
-        return True
+        return self._step(self._undo, self._redo, 0, "undo")
 
     def redo(self) -> bool:
-        if not self._redo:
+        """Redo the last undone edit."""
+        return self._step(self._redo, self._undo, 1, "redo")
+
+    def _step(self, source, target, side: int, word: str) -> bool:
+        """Move one command from ``source`` to ``target`` and apply its before (0) or after
+        (1) state."""
+        if not source:
             return False
-        command = self._redo.pop()
-        self._undo.append(command)
-        self.update({k: after for k, (_, after) in command.changes.items()})
+        command = source.pop()
+        target.append(command)
+        self.update({k: states[side] for k, states in command.changes.items()})
         self._sync_history()
-        self.append_log(f"redo: {command.label}")
+        self.append_log(f"{word}: {command.label}")
         return True
 
     def _sync_history(self):
