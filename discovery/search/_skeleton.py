@@ -27,6 +27,7 @@ locked pairs are never removed, and a test that separates one is reported as a c
 from __future__ import annotations
 
 import time
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from itertools import combinations, islice
 from typing import Callable
@@ -36,7 +37,61 @@ from scipy.special import comb
 
 from ..exceptions import SearchCancelled
 
-__all__ = ["SkeletonOutcome", "adjacency_search"]
+__all__ = ["SeparatingSets", "SkeletonOutcome", "adjacency_search"]
+
+
+class SeparatingSets(Mapping):
+    """``(x, y) -> (S, p)`` for every separated pair (``x < y``), in test-index space.
+
+    Most pairs of a large search are separated by the empty set at level 0; those are kept as
+    two arrays (sorted pair keys and p-values) and become tuples only when read, so recording
+    tens of thousands of them costs no Python objects.
+    """
+
+    def __init__(self, n_vars: int):
+        self._n = max(int(n_vars), 1)
+        self._sets: dict[tuple[int, int], tuple[tuple[int, ...], float]] = {}
+        self._empty_keys = np.empty(0, dtype=np.int64)
+        self._empty_p = np.empty(0)
+
+    def record(self, rows: np.ndarray, p: np.ndarray) -> None:
+        """Record separating rows ``[x, y, s1..sk]`` with their p-values."""
+        if rows.shape[1] == 2:
+            keys = np.concatenate([self._empty_keys,
+                                   rows[:, 0].astype(np.int64) * self._n + rows[:, 1]])
+            values = np.concatenate([self._empty_p, np.asarray(p, dtype=float)])
+            order = np.argsort(keys, kind="stable")
+            self._empty_keys, self._empty_p = keys[order], values[order]
+            return
+        pairs = zip(rows[:, 0].tolist(), rows[:, 1].tolist())
+        self._sets.update(zip(pairs, zip(map(tuple, rows[:, 2:].tolist()),
+                                         np.asarray(p, dtype=float).tolist())))
+
+    def __getitem__(self, pair):
+        found = self._sets.get(pair)
+        if found is not None:
+            return found
+        x, y = pair
+        key = int(x) * self._n + int(y)
+        at = int(np.searchsorted(self._empty_keys, key))
+        if at < len(self._empty_keys) and self._empty_keys[at] == key:
+            return (), float(self._empty_p[at])
+        raise KeyError(pair)
+
+    def __len__(self) -> int:
+        return len(self._sets) + len(self._empty_keys)
+
+    def __iter__(self):
+        for key in self._empty_keys.tolist():
+            yield divmod(key, self._n)
+        yield from self._sets
+
+    def items(self):
+        """Every ``((x, y), (S, p))``, the empty sets first (a list, built in one pass)."""
+        xs, ys = np.divmod(self._empty_keys, self._n)
+        empty = zip(zip(xs.tolist(), ys.tolist()),
+                    zip([()] * len(xs), self._empty_p.tolist()))
+        return list(empty) + list(self._sets.items())
 
 
 @dataclass
@@ -44,7 +99,7 @@ class SkeletonOutcome:
     """What the adjacency search found, in test-index space (mutable, internal)."""
 
     adjacent: list[set[int]]
-    sepsets: dict[tuple[int, int], tuple[tuple[int, ...], float]] = field(default_factory=dict)
+    sepsets: SeparatingSets
     # every test run, in the order run: blocks of index rows [x, y, s1..sk] and p-values
     log: list[tuple[np.ndarray, np.ndarray]] = field(default_factory=list)
     locked_conflicts: list[tuple[int, int, tuple[int, ...], float]] = field(default_factory=list)
@@ -257,7 +312,8 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     adj = ~np.eye(n_vars, dtype=bool)
     for a, b in forbidden:
         adj[a, b] = adj[b, a] = False
-    out = SkeletonOutcome(adjacent=[])
+    out = SkeletonOutcome(adjacent=[], sepsets=SeparatingSets(n_vars))
+    locked_keys = np.array(sorted(a * n_vars + b for a, b in locked), dtype=np.int64)
     ghosts = set(forbidden)  # forbidden pairs still looking for a separating set
     conflicted = set()  # locked pairs the data already separated once
     level = 0
@@ -311,24 +367,15 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 # first independent row of each owner (an owner's rows are contiguous)
                 hit_owners, first = np.unique(owner_of_row[hits], return_index=True)
                 chosen = hits[first]
-            rows = idx[chosen]
-            pairs = list(zip(rows[:, 0].tolist(), rows[:, 1].tolist()))
-            sets = ([()] * len(pairs) if rows.shape[1] == 2
-                    else list(map(tuple, rows[:, 2:].tolist())))
-            pvs = p[chosen].tolist()
-            if locked and not locked.isdisjoint(pairs):
-                rows = rows[[pair not in locked for pair in pairs]]
-                keep = []
-                for pair, s, pv in zip(pairs, sets, pvs):
-                    if pair in locked:
-                        out.locked_conflicts.append((pair[0], pair[1], s, pv))
-                        conflicted.add(pair)
-                    else:
-                        keep.append((pair, s, pv))
-                pairs = [k[0] for k in keep]
-                sets = [k[1] for k in keep]
-                pvs = [k[2] for k in keep]
-            out.sepsets.update(zip(pairs, zip(sets, pvs)))
+            rows, pvs = idx[chosen], p[chosen]
+            if len(locked_keys):
+                is_locked = np.isin(rows[:, 0].astype(np.int64) * n_vars + rows[:, 1],
+                                    locked_keys)
+                for row, pv in zip(rows[is_locked].tolist(), pvs[is_locked].tolist()):
+                    out.locked_conflicts.append((row[0], row[1], tuple(row[2:]), pv))
+                    conflicted.add((row[0], row[1]))
+                rows, pvs = rows[~is_locked], pvs[~is_locked]
+            out.sepsets.record(rows, pvs)
             removed_now.append(rows[:, :2])
             return hit_owners
 
