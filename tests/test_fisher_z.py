@@ -131,3 +131,34 @@ def test_independent_data_is_rarely_rejected():
     triples = [(i, j, ()) for i in range(30) for j in range(i + 1, 30)]
     rate = float(np.mean(t.pvalues(triples) < 0.05))
     assert 0.02 <= rate <= 0.09
+
+
+@pytest.mark.parametrize("alpha", [0.01, 0.05, 0.2, 0.6])
+def test_may_separate_never_rules_out_a_separating_variable(alpha):
+    # The search skips a level-1 test when FisherZ.may_separate says the one conditioning
+    # variable cannot separate the pair. Reference for every skipped test: the p-value from
+    # statsmodels OLS residual correlation and scipy's normal distribution must be <= alpha.
+    from discovery.simulate import random_dag, sample_linear_gaussian
+    rng = np.random.default_rng(5)
+    frame = sample_linear_gaussian(random_dag(9, expected_degree=3, rng=rng), 300, rng=rng)
+    test = FisherZ(frame)
+    names = list(frame.columns)
+    pairs = np.array([(i, j) for i in range(9) for j in range(i + 1, 9)])
+    possible = test.may_separate(pairs, alpha)
+    skipped = 0
+    for (i, j), row in zip(pairs, possible):
+        for k in np.flatnonzero(~row):
+            if k in (i, j):
+                continue
+            r = residual_correlation(frame, names[i], names[j], (names[k],))
+            p = 2 * stats.norm.sf(abs(np.arctanh(r)) * np.sqrt(len(frame) - 4))
+            assert p <= alpha, (names[i], names[j], names[k], p)
+            skipped += 1
+    assert skipped > 0  # the shortcut does rule tests out on this data
+
+
+def test_may_separate_is_none_under_test_wise_deletion():
+    values = np.random.default_rng(2).normal(size=(50, 3))
+    values[0, 0] = np.nan
+    test = FisherZ(values, missing="test-wise")
+    assert test.may_separate(np.array([[0, 1]]), 0.05) is None

@@ -215,3 +215,21 @@ def test_slow_tests_report_progress_and_stop_within_a_level():
 
     with pytest.raises(SearchCancelled):
         discover(None, test=Slow(20), cancel=stop_after_first_piece)
+
+
+def test_skipping_level_one_tests_that_cannot_separate_keeps_the_skeleton():
+    # FisherZ.may_separate lets level 1 skip tests whose outcome is already certain; the
+    # skeleton and every separating set must be those of the search that runs them all.
+    from discovery import FisherZ
+    from discovery.search._skeleton import adjacency_search
+    rng = np.random.default_rng(7)
+    frame = sample_linear_gaussian(random_dag(60, expected_degree=3, rng=rng), 1000, rng=rng)
+    test = FisherZ(frame[sorted(frame.columns)])
+    common = dict(alpha=0.05, association=test.association())
+    full = adjacency_search(60, test.pvalues_array, **common)
+    fast = adjacency_search(60, test.pvalues_array,
+                            may_separate=lambda pairs: test.may_separate(pairs, 0.05), **common)
+    assert fast.adjacent == full.adjacent
+    assert dict(fast.sepsets.items()) == dict(full.sepsets.items())
+    tests = [sum(len(block[0]) for block in outcome.log) for outcome in (fast, full)]
+    assert tests[0] < tests[1]

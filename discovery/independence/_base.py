@@ -150,6 +150,16 @@ class IndependenceTest:
         """
         return None
 
+    def may_separate(self, pairs: np.ndarray, alpha: float) -> np.ndarray | None:
+        """Optional: which single variables could separate each pair at level ``alpha``.
+
+        ``pairs`` is an ``(m, 2)`` index array. Returns a boolean ``(m, len(variables))``
+        array that is False only where the test can tell, without running it, that
+        conditioning on that one variable cannot give a p-value above ``alpha``; the search
+        then skips those tests. None (the default): no such knowledge, every test is run.
+        """
+        return None
+
     # -- provided -----------------------------------------------------------------------------
     def pvalues(self, triples: Sequence[Triple], *, executor=None,
                 canonical: bool = False) -> np.ndarray:

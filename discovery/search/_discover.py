@@ -173,7 +173,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                 locked=locked, forbidden=forbidden, progress=progress,
                                 cancelled=cancelled, association=test_obj.association(),
                                 batch_limit=None if test_obj.vectorised
-                                else 64 * max(1, getattr(executor, "jobs", 1)))
+                                else 64 * max(1, getattr(executor, "jobs", 1)),
+                                may_separate=lambda pairs: test_obj.may_separate(
+                                    pairs, settings.alpha))
     t1 = time.perf_counter()
     rank = np.arange(len(names))
 
@@ -392,6 +394,11 @@ class NameOrderedTest(IndependenceTest):
     def association(self):
         inner = self.inner.association()
         return None if inner is None else inner[np.ix_(self._to_inner, self._to_inner)]
+
+    def may_separate(self, pairs, alpha):
+        m = np.asarray(self._to_inner, dtype=np.intp)
+        inner = self.inner.may_separate(m[pairs], alpha)
+        return None if inner is None else inner[:, m]
 
     def _batch(self, triples):
         m = self._to_inner

@@ -125,31 +125,57 @@ def _key_layout(n: int):
     return (np.int32 if shift + _WEAK_BITS + 2 <= 31 else np.int64), shift
 
 
-def _candidate_keys(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
-    """Ranking keys of every variable as a size-1 candidate for each pair, and the mask of
-    real candidates.
-
-    A candidate is a neighbour of x (without y), or else of y (without x); the key orders
-    x's side first, then y's, each strongest first (smallest
-    ``max(weakness[x, z], weakness[y, z])``: a separator is usually associated with both),
-    ties by index (= name) order. Keys are distinct integers.
-    """
+def _level_one_candidates(pairs: np.ndarray, frozen: np.ndarray):
+    """Masks (pairs x variables) of each pair's single candidates: ``candidate`` (a neighbour
+    of x or of y, the partner excluded) and ``on_x`` (a neighbour of x: x's side)."""
     rows = np.arange(len(pairs))
-    side_x = np.take(frozen, pairs[:, 0], axis=0)  # (np.take: a fast row gather)
-    side_x[rows, pairs[:, 1]] = False
-    side_y = np.take(frozen, pairs[:, 1], axis=0) & ~side_x
-    side_y[rows, pairs[:, 0]] = False
-    n = frozen.shape[1]
+    on_x = np.take(frozen, pairs[:, 0], axis=0)  # (np.take: a fast row gather)
+    on_x[rows, pairs[:, 1]] = False
+    candidate = np.take(frozen, pairs[:, 1], axis=0)
+    candidate[rows, pairs[:, 0]] = False
+    candidate |= on_x
+    return candidate, on_x
+
+
+def _candidate_keys(pairs: np.ndarray, candidate: np.ndarray, on_x: np.ndarray,
+                    weakness: np.ndarray) -> np.ndarray:
+    """Ranking keys (pairs x variables) of every variable as a single candidate of each pair.
+
+    The key orders x's side first, then y's, each strongest first (smallest
+    ``max(weakness[x, z], weakness[y, z])``: a separator is usually associated with both),
+    ties by index (= name) order; non-candidates come last. Keys are distinct integers.
+    """
+    n = candidate.shape[1]
     dtype, shift = _key_layout(n)
-    candidate = side_x | side_y
     # side 0 = x, 1 = y only, 2 = not a candidate
-    side = (~side_x).view(np.uint8) + (~candidate).view(np.uint8)
+    side = (~on_x).view(np.uint8) + (~candidate).view(np.uint8)
     key = np.maximum(np.take(weakness, pairs[:, 0], axis=0),
                      np.take(weakness, pairs[:, 1], axis=0)).astype(dtype, copy=False)
     key |= side.astype(dtype) << _WEAK_BITS
     key <<= shift
     key |= np.arange(n, dtype=dtype)[None, :]
-    return key, candidate
+    return key
+
+
+def _ranked_candidates(pairs: np.ndarray, candidate: np.ndarray, count: np.ndarray,
+                       on_x: np.ndarray, weakness: np.ndarray):
+    """The candidates of a sparse ``candidate`` mask (``count`` per row) as flat arrays in
+    the order of :func:`_candidate_keys`: ``(idx, owner, rank)`` with rows ``[x, y, z]``, the
+    pair each row belongs to (a pair's rows contiguous) and the row's rank within its pair."""
+    n = candidate.shape[1]
+    owner = np.repeat(np.arange(len(pairs)), count)
+    z = np.flatnonzero(candidate) - owner * n
+    shift = int(n).bit_length()
+    x, y = pairs[owner, 0], pairs[owner, 1]
+    key = np.maximum(weakness.take(x * n + z), weakness.take(y * n + z)).astype(np.int64)
+    key |= (~on_x[owner, z]).astype(np.int64) << _WEAK_BITS
+    key |= owner.astype(np.int64) << (_WEAK_BITS + 1)
+    key <<= shift
+    key |= z
+    order = np.argsort(key)
+    owner, idx = owner[order], np.column_stack([x[order], y[order], z[order]])
+    starts = np.searchsorted(owner, np.arange(len(pairs)))
+    return idx, owner, np.arange(len(owner)) - starts[owner]
 
 
 def _rank_rows(key: np.ndarray, top: int | None) -> np.ndarray:
@@ -271,7 +297,8 @@ def _count_sets(pairs: np.ndarray, frozen: np.ndarray, degree: np.ndarray,
 def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=None,
                      locked=(), forbidden=(), progress=None, cancelled=None,
                      association: np.ndarray | None = None,
-                     batch_limit: int | None = None) -> SkeletonOutcome:
+                     batch_limit: int | None = None,
+                     may_separate: Callable | None = None) -> SkeletonOutcome:
     """Run the order-independent adjacency search.
 
     Parameters
@@ -295,6 +322,10 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     batch_limit : int, optional
         Send at most this many tests at once (for slow tests: progress is reported and the
         cancel flag checked between the pieces of a large batch). None: no limit.
+    may_separate : callable, optional
+        ``may_separate(pairs) -> bool array (pairs x variables) or None``: False where the test
+        can tell without running it that conditioning on that single variable cannot separate
+        the pair (see ``IndependenceTest.may_separate``); level 1 skips those tests.
     association : array, optional
         A symmetric matrix of association strengths (e.g. absolute correlations) used to try
         the most promising conditioning variables first; by default ``1 - p`` of the
@@ -379,6 +410,29 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             removed_now.append(rows[:, :2])
             return hit_owners
 
+        def run_flat(all_idx, all_owner, all_rank, n_owners):
+            """Send candidate rows given as flat arrays in rounds (ranks lo..hi-1 of every
+            still-open owner)."""
+            nonlocal done
+            active = np.ones(n_owners, dtype=bool)
+            lo, hi = 0, 1
+            while True:
+                if cancelled is not None and cancelled():
+                    raise SearchCancelled("the search was stopped before it finished")
+                take = (all_rank >= lo) & (all_rank < hi) & active[all_owner]
+                if not take.any():
+                    return
+                idx, owner = all_idx[take], all_owner[take]
+                p = answer(idx)
+                done += len(idx)
+                found = settle(idx, p, owner)
+                active[found] = False
+                width = hi - lo
+                lo, hi = hi, hi + (2 if width == 1 else 4 * width)
+                if progress is not None:
+                    progress({"phase": "skeleton", "level": level, "done": done,
+                              "planned": total})
+
         if cancelled is not None and cancelled():
             raise SearchCancelled("the search was stopped before it finished")
         if level == 0:
@@ -398,14 +452,24 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             # Candidates are ranked per pair in blocks (a pairs x variables matrix each), and
             # round r sends every still-open pair its candidates ranked lo..hi-1.
             block = max(1, 4_000_000 // max(n_vars, 1))
-            # Ranking is done in stages: the best candidate of every pair (one pass), then the
-            # next ten for the pairs still open, then all for the few left.
-            tops = [1, 11, None]
             for start in range(0, len(pairs), block):
                 sub = pairs[start:start + block]
-                gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
-                key, candidate = _candidate_keys(sub, frozen, weakness)
+                candidate, on_x = _level_one_candidates(sub, frozen)
+                if may_separate is not None:
+                    possible = may_separate(sub)
+                    if possible is not None:
+                        candidate &= possible  # skip tests that cannot separate
                 count = candidate.sum(axis=1)
+                if 8 * int(count.sum()) < candidate.size:
+                    # few candidates left: rank them as flat arrays
+                    run_flat(*_ranked_candidates(sub, candidate, count, on_x, weakness),
+                             len(sub))
+                    continue
+                key = _candidate_keys(sub, candidate, on_x, weakness)
+                gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
+                # Ranking is done in stages: the best candidate of every pair (one pass),
+                # then the next ten for the pairs still open, then all for the few left.
+                tops = [1, 11, None]
                 order = _rank_rows(key, tops[0])
                 stage = 0
                 ranked = order.shape[1]
@@ -442,25 +506,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
         elif len(pairs) >= 100 and (
                 flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
             # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
-            all_idx, all_owner, all_rank = flat
-            active = np.ones(len(pairs), dtype=bool)
-            lo, hi = 0, 1
-            while True:
-                if cancelled is not None and cancelled():
-                    raise SearchCancelled("the search was stopped before it finished")
-                take = (all_rank >= lo) & (all_rank < hi) & active[all_owner]
-                if not take.any():
-                    break
-                idx, owner = all_idx[take], all_owner[take]
-                p = answer(idx)
-                done += len(idx)
-                found = settle(idx, p, owner)
-                active[found] = False
-                width = hi - lo
-                lo, hi = hi, hi + (2 if width == 1 else 4 * width)
-                if progress is not None:
-                    progress({"phase": "skeleton", "level": level, "done": done,
-                              "planned": total})
+            run_flat(*flat, len(pairs))
         else:
             side_x, side_y = _ranked_sides(pairs, frozen, weakness)
             iters = [_candidate_sets(sx, sy, level) for sx, sy in zip(side_x, side_y)]
