@@ -148,7 +148,7 @@ def _candidate_keys(pairs: np.ndarray, candidate: np.ndarray, on_x: np.ndarray,
     n = candidate.shape[1]
     dtype, shift = _key_layout(n)
     # side 0 = x, 1 = y only, 2 = not a candidate
-    side = (~on_x).view(np.uint8) + (~candidate).view(np.uint8)
+    side = (~(on_x & candidate)).view(np.uint8) + (~candidate).view(np.uint8)
     key = np.maximum(np.take(weakness, pairs[:, 0], axis=0),
                      np.take(weakness, pairs[:, 1], axis=0)).astype(dtype, copy=False)
     key |= side.astype(dtype) << _WEAK_BITS
@@ -193,19 +193,28 @@ def _rank_rows(key: np.ndarray, top: int | None) -> np.ndarray:
 
 def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
     """For each side (x, then y) of every pair: the neighbour mask (partner excluded), the
-    neighbours' count, and the columns ranked strongest first (ties by index = name)."""
+    neighbours' count, and the neighbours ranked strongest first (ties by index = name), as
+    rows of a ``(pairs, largest count)`` array padded with -1."""
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
-    dtype, shift = _key_layout(n)
-    base = (np.maximum(np.take(weakness, pairs[:, 0], axis=0),
-                       np.take(weakness, pairs[:, 1], axis=0)).astype(dtype)
-            << shift) | np.arange(n, dtype=dtype)[None, :]
-    beyond = dtype(3 << _WEAK_BITS) << shift  # above every real key (sides are 0..2)
+    shift = int(n).bit_length()
     for a, b in ((0, 1), (1, 0)):
         member = np.take(frozen, pairs[:, a], axis=0)
         member[rows, pairs[:, b]] = False
         counts = member.sum(axis=1)
-        yield member, counts, np.argsort(np.where(member, base, beyond), axis=1)
+        owner = np.repeat(rows, counts)
+        z = np.flatnonzero(member) - owner * n
+        key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
+                         weakness.take(pairs[owner, 1] * n + z)).astype(np.int64)
+        key |= owner.astype(np.int64) << _WEAK_BITS
+        key <<= shift
+        key |= z
+        z = z[np.argsort(key)]
+        ranked = np.full((len(pairs), int(counts.max()) if len(pairs) else 0), -1,
+                         dtype=np.intp)
+        starts = np.cumsum(counts) - counts
+        ranked[owner, np.arange(len(z)) - starts[owner]] = z
+        yield member, counts, ranked
 
 
 def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
@@ -232,41 +241,42 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     row belongs to (rows of a pair contiguous), and the row's position in its pair's order:
     first the k-subsets of adj(x)\\{y}, then those of adj(y)\\{x} not inside adj(x), each in
     combinations order of the ranked neighbours (strongest first), as :func:`_candidate_sets`.
+    Pairs are handled in groups of equal neighbour count, so no set is built in vain.
     """
-    rows = np.arange(len(pairs))
-    parts = []
-    member_x = None
-    for side, (member, counts, order) in enumerate(_side_orders(pairs, frozen, weakness)):
-        width = int(counts.max()) if len(counts) else 0
-        if width < level:
-            member_x = member if side == 0 else member_x
-            continue
-        combos = _combos(width, level)
-        if len(pairs) * len(combos) > limit:
-            return None
-        order = order[:, :width]
-        valid = combos[None, :, -1] < counts[:, None]            # (m, C)
-        sets = order[:, combos]                                  # (m, C, k)
-        if side == 1:
-            inside = np.take_along_axis(member_x, sets.reshape(len(pairs), -1),
-                                        axis=1).reshape(sets.shape).all(axis=2)
-            valid &= ~inside
-        else:
-            member_x = member
-        owner = np.broadcast_to(rows[:, None], valid.shape)[valid]
-        parts.append((owner, sets[valid], side))
-    if not parts:
-        return np.empty((0, level + 2), dtype=np.intp), np.empty(0, np.intp), \
-            np.empty(0, np.intp)
-    owner = np.concatenate([p[0] for p in parts])
-    sets = np.concatenate([p[1] for p in parts])
-    # each part is in pair order already; a stable sort by pair keeps x's side before y's
-    order = np.argsort(owner, kind="stable")
-    owner, sets = owner[order], np.sort(sets[order], axis=1)
-    starts = np.searchsorted(owner, rows)
-    rank = np.arange(len(owner)) - starts[owner]
-    idx = np.column_stack([pairs[owner, 0], pairs[owner, 1], sets])
-    return idx, owner, rank
+    m = len(pairs)
+    (member_x, count_x, ranked_x), (_, count_y, ranked_y) = _side_orders(pairs, frozen,
+                                                                         weakness)
+    n_x = np.rint(comb(count_x, level)).astype(np.int64)
+    if int(n_x.sum() + np.rint(comb(count_y, level)).sum()) > limit:
+        return None
+    n_y = np.zeros(m, dtype=np.int64)
+    pieces = []  # (owner, sets, position within the owner's rows)
+    for side, counts, ranked in ((0, count_x, ranked_x), (1, count_y, ranked_y)):
+        for c in np.unique(counts[counts >= level]).tolist():
+            group = np.flatnonzero(counts == c)
+            combos = _combos(c, level)
+            sets = ranked[group][:, combos].reshape(-1, level)
+            owner = np.repeat(group, len(combos))
+            if side == 0:
+                position = np.tile(np.arange(len(combos)), len(group))
+            else:
+                keep = ~member_x[owner[:, None], sets].all(axis=1)  # new: not inside adj(x)
+                sets, owner = sets[keep], owner[keep]
+                first = np.searchsorted(owner, owner)  # an owner's rows are contiguous
+                position = n_x[owner] + np.arange(len(owner)) - first
+                n_y += np.bincount(owner, minlength=m)
+            pieces.append((owner, sets, position))
+    total = n_x + n_y
+    starts = np.cumsum(total) - total
+    all_sets = np.empty((int(total.sum()), level), dtype=np.intp)
+    all_owner = np.empty(len(all_sets), dtype=np.intp)
+    rank = np.empty(len(all_sets), dtype=np.intp)
+    for owner, sets, position in pieces:
+        at = starts[owner] + position
+        all_sets[at], all_owner[at], rank[at] = sets, owner, position
+    all_sets.sort(axis=1)
+    idx = np.column_stack([pairs[all_owner, 0], pairs[all_owner, 1], all_sets])
+    return idx, all_owner, rank
 
 
 def _candidate_sets(side_x: list[int], side_y: list[int], level: int):
