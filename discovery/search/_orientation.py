@@ -104,39 +104,42 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     # 2. unshielded triples and colliders --------------------------------------------------
     proposed: dict[tuple[int, int], tuple[str, str]] = {}
     ambiguous: set[tuple[int, int, int]] = set()
-    for z in sorted(range(len(adjacent)), key=key):
-        for x, y in combinations(sorted(adjacent[z], key=key), 2):
-            if y in adjacent[x]:
-                continue
-            pair = (min(x, y), max(x, y))
-            record = {"x": names[x], "z": names[z], "y": names[y]}
-            if pair in unseparated:
-                record.update(decision="ambiguous",
-                              reason=f"{names[x]} and {names[y]} are forbidden to be adjacent "
-                                     "but no separating set was found; left undecided")
-                ambiguous.add((x, z, y))
-                out.triples.append(record)
-                continue
-            sep, _ = sepsets[pair]
-            decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
-                                         names, name_set)
-            if decision == "collider":
-                refusal = (_collider_refusal(x, z, y, locked, why_forbidden, names)
-                           if check_knowledge else None)
-                if refusal:
-                    decision = "refused"
-                    reason = f"{reason}; refused: {refusal}"
-                    out.conflicts.append(
-                        f"collider {names[x]} → {names[z]} ← {names[y]} refused: {refusal}")
-                else:
-                    for u in (x, y):
-                        proposed.setdefault(
-                            (u, z), ("collider", f"collider {names[x]} → {names[z]} ← "
-                                                 f"{names[y]}: {reason}"))
-            elif decision == "ambiguous":
-                ambiguous.add((x, z, y))
-            record.update(decision=decision, reason=reason)
+    unshielded = [(x, z, y) for z in sorted(range(len(adjacent)), key=key)
+                  for x, y in combinations(sorted(adjacent[z], key=key), 2)
+                  if y not in adjacent[x]]
+    pairs = [(min(x, y), max(x, y)) for x, _, y in unshielded]
+    wanted = [pair for pair in pairs if pair not in unseparated]
+    many = getattr(sepsets, "many", None)  # a SeparatingSets looks them up together
+    found = iter(many(wanted) if many is not None else [sepsets[p] for p in wanted])
+    for (x, z, y), pair in zip(unshielded, pairs):
+        record = {"x": names[x], "z": names[z], "y": names[y]}
+        if pair in unseparated:
+            record.update(decision="ambiguous",
+                          reason=f"{names[x]} and {names[y]} are forbidden to be adjacent "
+                                 "but no separating set was found; left undecided")
+            ambiguous.add((x, z, y))
             out.triples.append(record)
+            continue
+        sep, _ = next(found)
+        decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
+                                     names, name_set)
+        if decision == "collider":
+            refusal = (_collider_refusal(x, z, y, locked, why_forbidden, names)
+                       if check_knowledge else None)
+            if refusal:
+                decision = "refused"
+                reason = f"{reason}; refused: {refusal}"
+                out.conflicts.append(
+                    f"collider {names[x]} → {names[z]} ← {names[y]} refused: {refusal}")
+            else:
+                for u in (x, y):
+                    proposed.setdefault(
+                        (u, z), ("collider", f"collider {names[x]} → {names[z]} ← "
+                                             f"{names[y]}: {reason}"))
+        elif decision == "ambiguous":
+            ambiguous.add((x, z, y))
+        record.update(decision=decision, reason=reason)
+        out.triples.append(record)
     for (u, z), reason in proposed.items():
         if (u, z) not in knowledge_heads:
             out.heads.add((u, z))

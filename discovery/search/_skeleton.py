@@ -43,55 +43,70 @@ __all__ = ["SeparatingSets", "SkeletonOutcome", "adjacency_search"]
 class SeparatingSets(Mapping):
     """``(x, y) -> (S, p)`` for every separated pair (``x < y``), in test-index space.
 
-    Most pairs of a large search are separated by the empty set at level 0; those are kept as
-    two arrays (sorted pair keys and p-values) and become tuples only when read, so recording
-    tens of thousands of them costs no Python objects.
+    Kept as the blocks of rows ``[x, y, s1..sk]`` and p-values the search recorded (a large
+    search separates tens of thousands of pairs); a record becomes Python tuples only when
+    read, and lookups go through a sorted index of pair keys built on the first one.
     """
 
     def __init__(self, n_vars: int):
         self._n = max(int(n_vars), 1)
-        self._sets: dict[tuple[int, int], tuple[tuple[int, ...], float]] = {}
-        self._empty_keys = np.empty(0, dtype=np.int64)
-        self._empty_p = np.empty(0)
+        self._blocks: list[tuple[np.ndarray, np.ndarray]] = []
+        self._index = None  # (sorted pair keys, block of each, row of each)
 
     def record(self, rows: np.ndarray, p: np.ndarray) -> None:
-        """Record separating rows ``[x, y, s1..sk]`` with their p-values."""
-        if rows.shape[1] == 2:
-            keys = np.concatenate([self._empty_keys,
-                                   rows[:, 0].astype(np.int64) * self._n + rows[:, 1]])
-            values = np.concatenate([self._empty_p, np.asarray(p, dtype=float)])
+        """Record separating rows ``[x, y, s1..sk]`` (pairs not yet recorded) and p-values."""
+        if len(rows):
+            self._blocks.append((rows, np.asarray(p, dtype=float)))
+            self._index = None
+
+    def _lookup(self):
+        if self._index is None:
+            keys = np.concatenate([rows[:, 0].astype(np.int64) * self._n + rows[:, 1]
+                                   for rows, _ in self._blocks] or [np.empty(0, np.int64)])
+            block = np.repeat(np.arange(len(self._blocks)),
+                              [len(rows) for rows, _ in self._blocks])
+            row = np.concatenate([np.arange(len(rows)) for rows, _ in self._blocks]
+                                 or [np.empty(0, np.intp)])
             order = np.argsort(keys, kind="stable")
-            self._empty_keys, self._empty_p = keys[order], values[order]
-            return
-        pairs = zip(rows[:, 0].tolist(), rows[:, 1].tolist())
-        self._sets.update(zip(pairs, zip(map(tuple, rows[:, 2:].tolist()),
-                                         np.asarray(p, dtype=float).tolist())))
+            self._index = keys[order], block[order], row[order]
+        return self._index
 
     def __getitem__(self, pair):
-        found = self._sets.get(pair)
-        if found is not None:
-            return found
-        x, y = pair
-        key = int(x) * self._n + int(y)
-        at = int(np.searchsorted(self._empty_keys, key))
-        if at < len(self._empty_keys) and self._empty_keys[at] == key:
-            return (), float(self._empty_p[at])
-        raise KeyError(pair)
+        return self.many([pair])[0]
+
+    def many(self, pairs) -> list[tuple[tuple[int, ...], float]]:
+        """``(S, p)`` of each pair of ``pairs`` (``x < y``), looked up together."""
+        keys, block, row = self._lookup()
+        pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
+        want = pairs[:, 0] * self._n + pairs[:, 1]
+        at = np.minimum(np.searchsorted(keys, want), max(len(keys) - 1, 0))
+        missing = np.flatnonzero(keys[at] != want) if len(keys) else np.arange(len(want))
+        if len(missing):
+            raise KeyError(tuple(pairs[missing[0]].tolist()))
+        out: list = [None] * len(want)
+        for b, (rows, p) in enumerate(self._blocks):
+            chosen = np.flatnonzero(block[at] == b)
+            if len(chosen):
+                r = row[at[chosen]]
+                for i, s, q in zip(chosen.tolist(), rows[r, 2:].tolist(), p[r].tolist()):
+                    out[i] = (tuple(s), q)
+        return out
 
     def __len__(self) -> int:
-        return len(self._sets) + len(self._empty_keys)
+        return sum(len(rows) for rows, _ in self._blocks)
 
     def __iter__(self):
-        for key in self._empty_keys.tolist():
+        for key in self._lookup()[0].tolist():
             yield divmod(key, self._n)
-        yield from self._sets
 
     def items(self):
-        """Every ``((x, y), (S, p))``, the empty sets first (a list, built in one pass)."""
-        xs, ys = np.divmod(self._empty_keys, self._n)
-        empty = zip(zip(xs.tolist(), ys.tolist()),
-                    zip([()] * len(xs), self._empty_p.tolist()))
-        return list(empty) + list(self._sets.items())
+        """Every ``((x, y), (S, p))`` in the order recorded (a list, built in one pass)."""
+        out = []
+        for rows, p in self._blocks:
+            sets = ([()] * len(rows) if rows.shape[1] == 2
+                    else map(tuple, rows[:, 2:].tolist()))
+            out += zip(zip(rows[:, 0].tolist(), rows[:, 1].tolist()), zip(sets, p.tolist()))
+        return out
 
 
 @dataclass
