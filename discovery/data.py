@@ -86,6 +86,7 @@ import re
 import warnings
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -210,7 +211,7 @@ class Dataset:
     missing: str
     notes: tuple[str, ...] = ()
 
-    @property
+    @cached_property
     def variables(self) -> tuple[str, ...]:
         """The names of the usable columns, in file order."""
         return tuple(self.frame.columns)
@@ -960,11 +961,13 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
                                    f"exclude it with --columns")
 
     infinite = {}
-    if floats:
-        block = np.isinf(frame[[c for c in dataset.variables if c in floats]].to_numpy())
-        counts = block.sum(axis=0)
-        infinite.update((c, int(k)) for c, k in zip(
-            [c for c in dataset.variables if c in floats], counts) if k)
+    float_columns = [c for c in dataset.variables if c in floats]
+    if float_columns:
+        block = (frame if len(float_columns) == frame.shape[1] else frame[float_columns])
+        block = block.to_numpy()
+        if np.isinf(block).any():  # count per column only when there is something to say
+            counts = np.isinf(block).sum(axis=0)
+            infinite.update((c, int(k)) for c, k in zip(float_columns, counts) if k)
     for column in dataset.variables:
         if column in floats:
             continue

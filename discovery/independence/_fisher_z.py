@@ -92,7 +92,7 @@ class FisherZ(IndependenceTest):
         self._key = ("fisher-z", missing, values.shape, self.variables,
                      fingerprint or _fingerprint(values))
         self._corr = None if self._has_nan else _correlation(values)
-        self._abs_corr = self._abs_corr32 = None
+        self._abs_corr = self._corr32 = None
 
     @property
     def correlation(self) -> np.ndarray:
@@ -116,21 +116,22 @@ class FisherZ(IndependenceTest):
 
         ``p > alpha`` needs ``|r_xy.z| < c = tanh(z_{1-alpha/2} / sqrt(n - 4))``, and since the
         denominator of the partial correlation is at most one,
-        ``|r_xy.z| >= |r_xy| - |r_xz| |r_yz|``. So when ``|r_xz| |r_yz| <= |r_xy| - c`` the test
-        can only find dependence. The products are formed in single precision (half the
-        memory traffic) with a margin of 1e-6, far above its rounding. Complete data only.
+        ``|r_xy.z| >= |r_xy - r_xz r_yz|``. So when ``|r_xy - r_xz r_yz| >= c`` the test can
+        only find dependence. Formed in single precision (half the memory traffic) with a
+        margin of 1e-6, far above its rounding. Complete data only.
         """
         n_eff = self.n - 4
         if self._corr is None or n_eff <= 0 or not 0.0 < alpha < 1.0:
             return None
-        if self._abs_corr32 is None:
-            self._abs_corr32 = self.association().astype(np.float32)
-        a = self._abs_corr32
-        critical = np.tanh(-ndtri(alpha / 2.0) / np.sqrt(n_eff))
-        bound = (self._abs_corr[pairs[:, 0], pairs[:, 1]] - critical - 1e-6).astype(np.float32)
-        product = np.take(a, pairs[:, 0], axis=0)
-        product *= np.take(a, pairs[:, 1], axis=0)
-        return ~(product <= bound[:, None])  # NaN stays possible
+        if self._corr32 is None:
+            self._corr32 = self._corr.astype(np.float32)
+        r = self._corr32
+        critical = np.tanh(-ndtri(alpha / 2.0) / np.sqrt(n_eff)) + 1e-6
+        gap = np.take(r, pairs[:, 0], axis=0)
+        gap *= np.take(r, pairs[:, 1], axis=0)
+        gap -= r[pairs[:, 0], pairs[:, 1]][:, None]
+        np.abs(gap, out=gap)
+        return ~(gap >= np.float32(critical))  # NaN stays possible
 
     def _batch_array(self, idx):
         size = idx.shape[1] - 2

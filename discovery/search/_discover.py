@@ -122,7 +122,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
             settings = dataclasses.replace(settings, missing=dataset.missing)
         from ..data import check_collinearity, check_for_search
         check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
-        frame = dataset.frame[sorted(dataset.frame.columns)]
+        frame = dataset.frame
+        if list(frame.columns) != sorted(frame.columns):
+            frame = frame[sorted(frame.columns)]
         t_data = time.perf_counter()
         if test_name == "fisher-z" and not test_options:
             # the dataset is already hashed: name the data by that hash and the column order

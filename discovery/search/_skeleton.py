@@ -373,10 +373,11 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     ghosts = set(forbidden)  # forbidden pairs still looking for a separating set
     conflicted = set()  # locked pairs the data already separated once
     level = 0
+    upper = np.argwhere(np.triu(adj, 1))  # the adjacent pairs x < y, in index order
     while max_depth is None or level <= max_depth:
         frozen = adj.copy()
         degree = frozen.sum(axis=1)
-        upper = np.argwhere(np.triu(frozen, 1))
+        upper = upper[frozen[upper[:, 0], upper[:, 1]]]
         if conflicted:
             upper = np.array([p for p in map(tuple, upper) if p not in conflicted],
                              dtype=np.intp).reshape(-1, 2)
