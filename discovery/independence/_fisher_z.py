@@ -7,8 +7,10 @@ normal (Fisher 1921), and the two-sided p-value is ``2 * (1 - Phi(|z|))``. This 
 by the PC algorithm in Spirtes, Glymour & Scheines (2000), *Causation, Prediction, and Search*.
 
 The correlation matrix is computed once. A batch of triples with the same conditioning-set
-size is answered from a stack of small submatrices inverted together, not by a Python loop of
-regressions. With test-wise deletion (Tu, Zhang, Kjellström & Zhang 2019, "Causal discovery in
+size is answered from the stack of their small correlation submatrices at once, not by a
+Python loop of regressions: the entries ``P`` needs come from eliminating ``S`` (the Schur
+complement, i.e. the residual covariance of ``x`` and ``y`` given ``S``), one conditioning
+variable at a time across the whole batch. With test-wise deletion (Tu, Zhang, Kjellström & Zhang 2019, "Causal discovery in
 the presence of missing data", AISTATS) each test uses the rows complete on its own variables.
 
 References
@@ -176,9 +178,10 @@ def _correlation(values: np.ndarray) -> np.ndarray:
 def _partial_correlations(corr: np.ndarray, idx: np.ndarray) -> np.ndarray:
     """Partial correlations of columns idx[:,0] and idx[:,1] given idx[:,2:], one per row.
 
-    Sets of one or two variables use the recursion
-    ``r_xy.Sz = (r_xy.S - r_xz.S r_yz.S) / sqrt((1 - r_xz.S^2)(1 - r_yz.S^2))``
-    elementwise; larger sets invert their correlation submatrices as one stack.
+    A set of one variable uses ``r_xy.z = (r_xy - r_xz r_yz) / sqrt((1 - r_xz^2)(1 - r_yz^2))``
+    elementwise; larger sets eliminate their variables from the correlation submatrices
+    (:func:`_eliminate`), rows with a (nearly) singular conditioning block use the
+    pseudo-inverse.
     """
     k = idx.shape[1] - 2
     if k == 0:
@@ -186,16 +189,37 @@ def _partial_correlations(corr: np.ndarray, idx: np.ndarray) -> np.ndarray:
     if k == 1:
         x, y, z = idx.T
         return _recurse(corr[x, y], corr[x, z], corr[y, z])
-    if k == 2:
-        x, y, z, w = idx.T
-        rxw_z = _recurse(corr[x, w], corr[x, z], corr[w, z])
-        ryw_z = _recurse(corr[y, w], corr[y, z], corr[w, z])
-        rxy_z = _recurse(corr[x, y], corr[x, z], corr[y, z])
-        return _recurse(rxy_z, rxw_z, ryw_z)
-    sub = corr[idx[:, :, None], idx[:, None, :]]
-    prec = _stacked_inverse(sub)
+    vxx, vyy, vxy, ok = _eliminate(corr, idx)
     with np.errstate(invalid="ignore", divide="ignore"):
-        return -prec[:, 0, 1] / np.sqrt(prec[:, 0, 0] * prec[:, 1, 1])
+        r = vxy / np.sqrt(vxx * vyy)
+    if not ok.all():  # a (nearly) singular conditioning block: the pseudo-inverse decides
+        bad = idx[~ok]
+        prec = _stacked_inverse(corr[bad[:, :, None], bad[:, None, :]])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r[~ok] = -prec[:, 0, 1] / np.sqrt(prec[:, 0, 0] * prec[:, 1, 1])
+    return r
+
+
+def _eliminate(corr: np.ndarray, idx: np.ndarray):
+    """Covariance of ``x`` and ``y`` given ``S`` for each row ``[x, y, s1..sk]`` of ``idx``:
+    Gaussian elimination of the ``s`` from the correlation submatrix, one at a time (the
+    Schur complement). Each entry of the submatrix is one array over the rows, so every step
+    is a few elementwise operations on contiguous arrays. Returns the three entries and a
+    mask of the rows whose pivots all stayed clearly positive.
+    """
+    d = idx.shape[1]
+    cols = [idx[:, a] for a in range(d)]
+    m = {(a, b): corr[cols[a], cols[b]] for a in range(d) for b in range(a, d)}
+    ok = np.ones(len(idx), dtype=bool)
+    for j in range(d - 1, 1, -1):
+        pivot = m[j, j]
+        ok &= pivot > 1e-12
+        scale = 1.0 / np.where(ok, pivot, 1.0)
+        for a in range(j):
+            factor = m[a, j] * scale
+            for b in range(a, j):
+                m[a, b] -= factor * m[b, j]
+    return m[0, 0], m[1, 1], m[0, 1], ok
 
 
 def _recurse(rxy, rxz, ryz):

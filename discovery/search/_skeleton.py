@@ -29,7 +29,7 @@ from __future__ import annotations
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from itertools import combinations, islice
+from itertools import islice
 from typing import Callable
 
 import numpy as np
@@ -238,15 +238,39 @@ def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
             for _, counts, order in _side_orders(pairs, frozen, weakness)]
 
 
+# A batch costs a fixed overhead worth a few thousand vectorised tests: when no more rows than
+# this are left at a level, a vectorised test gets them in one batch even if some pairs would
+# have stopped earlier.
+_ONE_BATCH = 4096
+
 _COMBOS: dict[tuple[int, int], np.ndarray] = {}
 
 
-def _combos(n: int, k: int) -> np.ndarray:
-    """All k-subsets of range(n) as rows, in itertools.combinations order (cached)."""
-    if (n, k) not in _COMBOS:
-        _COMBOS[(n, k)] = np.array(list(combinations(range(n), k)),
-                                   dtype=np.intp).reshape(-1, k)
-    return _COMBOS[(n, k)]
+def _colex(n: int, k: int) -> np.ndarray:
+    """All k-subsets of range(n) as ascending rows, in colexicographic order (cached).
+
+    Colex order sorts subsets by their largest member, then the next largest, and so on:
+    {0,1}, {0,2}, {1,2}, {0,3}, ... So the subsets of range(c) are its first C(c, k) rows
+    for every c, and over ranked neighbours, every set of the c strongest comes before any
+    set that needs a weaker one.
+    """
+    rows = _COMBOS.get((n, k))
+    if rows is None:
+        rows = (np.array(list(_colex_subsets(range(n), k)), dtype=np.intp).reshape(-1, k)
+                if k else np.zeros((1, 0), dtype=np.intp))
+        if len(rows) <= 100_000:  # keep the small ones for the next level or search
+            _COMBOS[(n, k)] = rows
+    return rows
+
+
+def _colex_subsets(items, k: int):
+    """Yield the k-subsets of ``items`` (a sequence) as tuples, lazily, in colex order."""
+    if k == 0:
+        yield ()
+        return
+    for last in range(k - 1, len(items)):
+        for head in _colex_subsets(items[:last], k - 1):
+            yield head + (items[last],)
 
 
 def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
@@ -255,32 +279,27 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     Returns ``(idx, owner, rank)``: rows ``[x, y, s1..sk]`` (sets ascending), the pair each
     row belongs to (rows of a pair contiguous), and the row's position in its pair's order:
     first the k-subsets of adj(x)\\{y}, then those of adj(y)\\{x} not inside adj(x), each in
-    combinations order of the ranked neighbours (strongest first), as :func:`_candidate_sets`.
-    Pairs are handled in groups of equal neighbour count, so no set is built in vain.
+    colex order of the ranked neighbours (:func:`_colex`), as :func:`_candidate_sets`.
     """
     m = len(pairs)
     (member_x, count_x, ranked_x), (_, count_y, ranked_y) = _side_orders(pairs, frozen,
                                                                          weakness)
     n_x = np.rint(comb(count_x, level)).astype(np.int64)
-    if int(n_x.sum() + np.rint(comb(count_y, level)).sum()) > limit:
+    n_y = np.rint(comb(count_y, level)).astype(np.int64)
+    if int(n_x.sum() + n_y.sum()) > limit:
         return None
-    n_y = np.zeros(m, dtype=np.int64)
     pieces = []  # (owner, sets, position within the owner's rows)
-    for side, counts, ranked in ((0, count_x, ranked_x), (1, count_y, ranked_y)):
-        for c in np.unique(counts[counts >= level]).tolist():
-            group = np.flatnonzero(counts == c)
-            combos = _combos(c, level)
-            sets = ranked[group][:, combos].reshape(-1, level)
-            owner = np.repeat(group, len(combos))
-            if side == 0:
-                position = np.tile(np.arange(len(combos)), len(group))
-            else:
-                keep = ~member_x[owner[:, None], sets].all(axis=1)  # new: not inside adj(x)
-                sets, owner = sets[keep], owner[keep]
-                first = np.searchsorted(owner, owner)  # an owner's rows are contiguous
-                position = n_x[owner] + np.arange(len(owner)) - first
-                n_y += np.bincount(owner, minlength=m)
-            pieces.append((owner, sets, position))
+    for side, n_sets, ranked in ((0, n_x, ranked_x), (1, n_y, ranked_y)):
+        owner = np.repeat(np.arange(m), n_sets)
+        position = np.arange(len(owner)) - (np.cumsum(n_sets) - n_sets)[owner]
+        sets = ranked[owner[:, None], _colex(ranked.shape[1], level)[position]]
+        if side == 1:
+            keep = ~member_x[owner[:, None], sets].all(axis=1)  # new: not inside adj(x)
+            sets, owner = sets[keep], owner[keep]
+            kept = np.bincount(owner, minlength=m)
+            position = n_x[owner] + np.arange(len(owner)) - (np.cumsum(kept) - kept)[owner]
+            n_y = kept
+        pieces.append((owner, sets, position))
     total = n_x + n_y
     starts = np.cumsum(total) - total
     all_sets = np.empty((int(total.sum()), level), dtype=np.intp)
@@ -297,13 +316,13 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
 def _candidate_sets(side_x: list[int], side_y: list[int], level: int):
     """Yield conditioning sets of size ``level`` from adj(x)\\{y}, then new ones from adj(y)\\{x}.
 
-    The sides come ranked (see :func:`_ordered_sides`); sets come out sorted ascending, as
-    the cache's canonical rows need.
+    The sides come ranked (see :func:`_side_orders`), and each side's sets follow colex order
+    (:func:`_colex`); sets come out sorted ascending, as the cache's canonical rows need.
     """
-    for s in combinations(side_x, level):
+    for s in _colex_subsets(side_x, level):
         yield tuple(sorted(s))
     in_x = set(side_x)
-    for s in combinations(side_y, level):
+    for s in _colex_subsets(side_y, level):
         if not in_x.issuperset(s):
             yield tuple(sorted(s))
 
@@ -445,19 +464,27 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             while True:
                 if cancelled is not None and cancelled():
                     raise SearchCancelled("the search was stopped before it finished")
-                take = (all_rank >= lo) & (all_rank < hi) & active[all_owner]
-                if not take.any():
+                take = (all_rank >= lo) & active[all_owner]
+                left = np.count_nonzero(take)
+                if not left:
                     return
+                # a vectorised test takes the rest in one batch: fewer, fuller batches (a slow
+                # one keeps to rounds, so that no pair runs many tests past its separating set)
+                last = batch_limit is None and left <= _ONE_BATCH
+                if not last:
+                    take &= all_rank < hi
                 idx, owner = all_idx[take], all_owner[take]
                 p = answer(idx)
                 done += len(idx)
                 found = settle(idx, p, owner)
-                active[found] = False
-                width = hi - lo
-                lo, hi = hi, hi + (2 if width == 1 else 4 * width)
                 if progress is not None:
                     progress({"phase": "skeleton", "level": level, "done": done,
                               "planned": total})
+                if last:
+                    return
+                active[found] = False
+                width = hi - lo
+                lo, hi = hi, hi + (2 if width == 1 else 4 * width)
 
         if cancelled is not None and cancelled():
             raise SearchCancelled("the search was stopped before it finished")
@@ -529,8 +556,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     if progress is not None:
                         progress({"phase": "skeleton", "level": level, "done": done,
                                   "planned": total})
-        elif len(pairs) >= 100 and (
-                flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
+        elif (flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
             # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
             run_flat(*flat, len(pairs))
         else:
