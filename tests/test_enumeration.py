@@ -58,3 +58,11 @@ def test_flat_level_one_follows_the_dense_ranking(seed):
         kept = set(np.flatnonzero(candidate[i]).tolist())
         generated = [s[0] for s in _candidate_sets(side_x[i], side_y[i], 1) if s[0] in kept]
         assert dense == generated
+
+
+@pytest.mark.parametrize("k", range(0, 9))
+def test_rows_sorted_like_numpy(k):
+    # Reference: numpy.sort along rows.
+    from discovery.search._skeleton import _sort_rows
+    rows = np.random.default_rng(k).integers(0, 40, size=(500, k))
+    assert (_sort_rows(rows) == np.sort(rows, axis=1)).all()
