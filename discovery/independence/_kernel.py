@@ -65,7 +65,6 @@ References
 
 from __future__ import annotations
 
-import contextlib
 import multiprocessing
 import warnings
 from collections import OrderedDict
@@ -74,6 +73,7 @@ import numpy as np
 from scipy import linalg, special
 
 from ..exceptions import DegenerateDataWarning
+from ..executor import blas_threads
 from ._base import IndependenceTest
 from ._tabular import (as_frame, check_choice, check_int, check_missing_policy, check_real,
                        check_seed, check_single_levels, fingerprint, numeric_values,
@@ -232,23 +232,6 @@ def _weighted_chi2_sf(stat: float, weights: np.ndarray, samples: int,
         z = rng.standard_normal((stop - start, weights.size))
         draws[start:stop] = (z * z) @ weights
     return float((1 + np.count_nonzero(draws >= stat)) / (samples + 1))
-
-
-def _blas_threads(limit):
-    """Limit BLAS threads while a batch runs, when threadpoolctl is installed.
-
-    Small matrices (the low-rank test, exact tests up to :data:`THREADED_ROWS` rows) gain
-    nothing from BLAS threads, and worker processes already share the cores: on a busy 2-core
-    machine, multi-threaded BLAS made a 2-process kernel search 14 times slower (43 s against
-    3 s). Without threadpoolctl this does nothing.
-    """
-    if limit is None:
-        return contextlib.nullcontext()
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        return contextlib.nullcontext()
-    return threadpool_limits(limits=limit, user_api="blas")
 
 
 class _Lru:
@@ -417,7 +400,7 @@ class KernelCI(IndependenceTest):
         order = sorted(range(m), key=lambda i: (triples[i][2], triples[i][0], triples[i][1]))
         threaded = (not self.lowrank and self.n > THREADED_ROWS
                     and multiprocessing.parent_process() is None)
-        with _blas_threads(None if threaded else 1):
+        with blas_threads(None if threaded else 1):
             for i in order:
                 x, y, s = triples[i]
                 stat[i], pval[i] = self._one(x, y, s)

@@ -18,6 +18,7 @@ from typing import Callable
 import numpy as np
 
 from ..exceptions import DataValidationError, KnowledgeError, SettingsError
+from ..executor import blas_threads
 from ..independence import FisherZ, IndependenceTest, PValueCache, make_test
 from ..independence._base import canonical_triple
 from ..result import Edge, LazyRecords, Removal, SearchResult, TestLog
@@ -170,15 +171,6 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
-    t0 = time.perf_counter()
-    skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
-                                locked=locked, forbidden=forbidden, progress=progress,
-                                cancelled=cancelled, association=test_obj.association(),
-                                batch_limit=None if test_obj.vectorised
-                                else 64 * max(1, getattr(executor, "jobs", 1)),
-                                may_separate=lambda pairs: test_obj.may_separate(
-                                    pairs, settings.alpha))
-    t1 = time.perf_counter()
     rank = np.arange(len(names))
 
     def why_forbidden(a, b):
@@ -186,19 +178,30 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
 
     if not (knowledge.forbidden_directions or knowledge.stages):
         why_forbidden = None  # nothing can forbid a direction: skip the checks
-
-    separating_sets_of = None
-    if settings.collider_rule != "standard":
-        separating_sets_of = _separating_sets_finder(
-            skeleton.adjacent,
-            lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
-            settings.alpha, depth, cancelled)
-    orientation = orient(
-        skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
-        collider_rule=settings.collider_rule,
-        locked_directions=[(index[a], index[b]) for a, b in knowledge.locked_directions],
-        why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
-        unseparated=skeleton.unseparated_forbidden)
+    t0 = time.perf_counter()
+    # A vectorised test's batches are elementwise work on small arrays: BLAS threads gain
+    # nothing there, and threads left spinning after the correlation matrix compete with it.
+    with blas_threads(1 if test_obj.vectorised else None):
+        skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
+                                    locked=locked, forbidden=forbidden, progress=progress,
+                                    cancelled=cancelled, association=test_obj.association(),
+                                    batch_limit=None if test_obj.vectorised
+                                    else 64 * max(1, getattr(executor, "jobs", 1)),
+                                    may_separate=lambda pairs: test_obj.may_separate(
+                                        pairs, settings.alpha))
+        t1 = time.perf_counter()
+        separating_sets_of = None
+        if settings.collider_rule != "standard":
+            separating_sets_of = _separating_sets_finder(
+                skeleton.adjacent,
+                lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
+                settings.alpha, depth, cancelled)
+        orientation = orient(
+            skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
+            collider_rule=settings.collider_rule,
+            locked_directions=[(index[a], index[b]) for a, b in knowledge.locked_directions],
+            why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
+            unseparated=skeleton.unseparated_forbidden)
     t2 = time.perf_counter()
     for x, y, s, p in skeleton.locked_conflicts:
         orientation.conflicts.insert(0, (
