@@ -965,7 +965,11 @@ def check_for_search(dataset: Dataset, *, test="fisher-z", max_depth: int | None
     if float_columns:
         block = (frame if len(float_columns) == frame.shape[1] else frame[float_columns])
         block = block.to_numpy()
-        if np.isinf(block).any():  # count per column only when there is something to say
+        # a finite sum rules out infinities in one pass; otherwise look closer (the sum can
+        # also be NaN from missing cells, or overflow)
+        with np.errstate(invalid="ignore", over="ignore"):
+            total = block.sum()
+        if not np.isfinite(total) and np.isinf(block).any():
             counts = np.isinf(block).sum(axis=0)
             infinite.update((c, int(k)) for c, k in zip(float_columns, counts) if k)
     for column in dataset.variables:

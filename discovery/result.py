@@ -313,8 +313,9 @@ class SearchResult:
     removed : tuple of Removal
     tests : tuple of (str, str, tuple of str, float)
         Every test run: x, y, conditioning set, p-value.
-    triples : tuple of dict
-        Unshielded triples ``x — z — y`` with their decision and reason.
+    triples : sequence of mappings
+        Unshielded triples ``x — z — y`` with their decision and reason (built when first
+        read).
     conflicts : tuple of str
         Places where knowledge and data disagree, or colliders were refused or contested.
     notes : tuple of str
@@ -328,7 +329,7 @@ class SearchResult:
     edges: tuple[Edge, ...]
     removed: Sequence[Removal]
     tests: TestLog
-    triples: tuple[Mapping, ...] = ()
+    triples: Sequence[Mapping] = ()
     conflicts: tuple[str, ...] = ()
     notes: tuple[str, ...] = ()
     counts: Mapping = field(default_factory=dict)
@@ -340,7 +341,11 @@ class SearchResult:
     def __post_init__(self):
         for name in ("counts", "timings", "data", "software"):
             object.__setattr__(self, name, _freeze(getattr(self, name)))
-        object.__setattr__(self, "triples", tuple(_freeze(t) for t in self.triples))
+        if isinstance(self.triples, LazyRecords):  # frozen when first read
+            object.__setattr__(self, "triples",
+                               LazyRecords(lambda t=self.triples: map(_freeze, t)))
+        else:
+            object.__setattr__(self, "triples", tuple(_freeze(t) for t in self.triples))
         if not isinstance(self.tests, TestLog):
             object.__setattr__(self, "tests", TestLog.from_rows(self.tests))
         if not isinstance(self.removed, LazyRecords):

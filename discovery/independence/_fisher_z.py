@@ -83,7 +83,10 @@ class FisherZ(IndependenceTest):
         self.variables = tuple(variables)
         self.missing = missing
         self._values = values
-        self._has_nan = bool(np.isnan(values).any())
+        # a finite sum rules out missing values in one pass without a temporary
+        with np.errstate(invalid="ignore", over="ignore"):
+            total = values.sum()
+        self._has_nan = not np.isfinite(total) and bool(np.isnan(values).any())
         if self._has_nan and missing == "drop":
             raise DataValidationError(
                 "the data has missing values; drop incomplete rows first or use "

@@ -321,12 +321,12 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
                          locked=frozenset((names[x], names[y])) in locked_pairs)
             hx, hy = (y, x) in heads, (x, y) in heads
             if hx and hy:
-                reason = "; ".join(orientation.reasons[e][1] for e in ((x, y), (y, x)))
+                reason = "; ".join(orientation.reason(e)[1] for e in ((x, y), (y, x)))
                 edges.append(Edge(names[x], names[y], "contested", reason, "contested",
                                   **stats))
             elif hy or hx:
                 s, t = (x, y) if hy else (y, x)
-                kind, text = orientation.reasons[(s, t)]
+                kind, text = orientation.reason((s, t))
                 edges.append(Edge(names[s], names[t], "directed", text, kind, **stats))
             else:
                 edges.append(Edge(names[x], names[y], "undirected", "", "", **stats))
@@ -370,7 +370,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     return SearchResult(
         variables=display, settings=settings, knowledge=knowledge, edges=tuple(edges),
         removed=removed, tests=tests,
-        triples=tuple(sorted(orientation.triples, key=lambda t: (t["z"], t["x"], t["y"]))),
+        triples=LazyRecords(lambda: orientation.triple_records(names)),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
         software=_software(), seed=getattr(test_obj, "seed", None))

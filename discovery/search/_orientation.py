@@ -33,6 +33,7 @@ collider that contradicts it is refused and reported.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import partial
 from itertools import combinations
 from typing import Callable
 
@@ -41,13 +42,35 @@ __all__ = ["OrientationOutcome", "orient"]
 
 @dataclass
 class OrientationOutcome:
-    """Arrowheads with their reasons, triple decisions and conflicts (internal, index space)."""
+    """Arrowheads with their reasons, triple decisions and conflicts (internal, index space).
+
+    A reason's text may be left as a function that writes it (a search on hundreds of
+    variables decides thousands of triples, and most texts are never read): use
+    :meth:`reason` and :meth:`triple_records`, which write them.
+    """
 
     heads: set[tuple[int, int]] = field(default_factory=set)        # (i, j): head at j
-    reasons: dict[tuple[int, int], tuple[str, str]] = field(default_factory=dict)
-    triples: list[dict] = field(default_factory=list)
+    reasons: dict[tuple[int, int], tuple[str, object]] = field(default_factory=dict)
+    triples: list[tuple] = field(default_factory=list)  # (x, z, y, decision, reason)
     conflicts: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+
+    def reason(self, edge: tuple[int, int]) -> tuple[str, str]:
+        """``(kind, text)`` of the arrowhead ``edge`` (``(i, j)``: head at ``j``)."""
+        kind, text = self.reasons[edge]
+        return kind, _text(text)
+
+    def triple_records(self, names) -> list[dict]:
+        """Every unshielded triple as ``{"x", "z", "y", "decision", "reason"}``, ordered by
+        z, x, y (indices follow name order)."""
+        return [{"x": names[x], "z": names[z], "y": names[y], "decision": decision,
+                 "reason": _text(reason)}
+                for x, z, y, decision, reason in sorted(self.triples,
+                                                        key=lambda t: (t[1], t[0], t[2]))]
+
+
+def _text(text) -> str:
+    return text() if callable(text) else text
 
 
 def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rule="standard",
@@ -79,7 +102,7 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     key = rank.__getitem__
 
     def name_set(s):
-        return "{" + ", ".join(names[v] for v in sorted(s, key=key)) + "}"
+        return _name_set(s, names, key)
 
     # 1. knowledge -------------------------------------------------------------------------
     for x in (sorted(range(len(adjacent)), key=key) if check_knowledge else ()):
@@ -112,13 +135,11 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     many = getattr(sepsets, "many", None)  # a SeparatingSets looks them up together
     found = iter(many(wanted) if many is not None else [sepsets[p] for p in wanted])
     for (x, z, y), pair in zip(unshielded, pairs):
-        record = {"x": names[x], "z": names[z], "y": names[y]}
         if pair in unseparated:
-            record.update(decision="ambiguous",
-                          reason=f"{names[x]} and {names[y]} are forbidden to be adjacent "
-                                 "but no separating set was found; left undecided")
             ambiguous.add((x, z, y))
-            out.triples.append(record)
+            out.triples.append((x, z, y, "ambiguous", (
+                f"{names[x]} and {names[y]} are forbidden to be adjacent but no separating "
+                "set was found; left undecided")))
             continue
         sep, _ = next(found)
         decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
@@ -128,18 +149,17 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
                        if check_knowledge else None)
             if refusal:
                 decision = "refused"
-                reason = f"{reason}; refused: {refusal}"
+                reason = f"{_text(reason)}; refused: {refusal}"
                 out.conflicts.append(
                     f"collider {names[x]} → {names[z]} ← {names[y]} refused: {refusal}")
             else:
                 for u in (x, y):
-                    proposed.setdefault(
-                        (u, z), ("collider", f"collider {names[x]} → {names[z]} ← "
-                                             f"{names[y]}: {reason}"))
+                    if (u, z) not in proposed:
+                        proposed[(u, z)] = ("collider", partial(
+                            _collider_text, x, z, y, reason, names))
         elif decision == "ambiguous":
             ambiguous.add((x, z, y))
-        record.update(decision=decision, reason=reason)
-        out.triples.append(record)
+        out.triples.append((x, z, y, decision, reason))
     for (u, z), reason in proposed.items():
         if (u, z) not in knowledge_heads:
             out.heads.add((u, z))
@@ -165,11 +185,25 @@ def _set_arrow(out, a, b, reason):
     out.reasons[(a, b)] = reason
 
 
+def _name_set(s, names, key) -> str:
+    return "{" + ", ".join(names[v] for v in sorted(s, key=key)) + "}"
+
+
+def _sepset_text(z, sep, names, name_set) -> str:
+    where = "in" if z in sep else "not in"
+    return f"{names[z]} is {where} the separating set {name_set(sep)}"
+
+
+def _collider_text(x, z, y, reason, names) -> str:
+    return f"collider {names[x]} → {names[z]} ← {names[y]}: {_text(reason)}"
+
+
 def _classify(x, z, y, sep, rule, separating_sets_of, names, name_set):
+    """``(decision, reason)``; under the standard rule the reason is left as a function that
+    writes it."""
     if rule == "standard":
-        if z in sep:
-            return "non-collider", f"{names[z]} is in the separating set {name_set(sep)}"
-        return "collider", f"{names[z]} is not in the separating set {name_set(sep)}"
+        return ("non-collider" if z in sep else "collider",
+                partial(_sepset_text, z, sep, names, name_set))
     sets = separating_sets_of(x, y) or [sep]
     inside = sum(1 for s in sets if z in s)
     share = f"{names[z]} is in {inside} of {len(sets)} separating sets"
