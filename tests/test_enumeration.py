@@ -11,7 +11,8 @@ import pytest
 
 from discovery.search._skeleton import (_candidate_sets, _flat_candidate_sets,
                                         _level_one_candidates, _candidate_keys,
-                                        _ranked_candidates, _ranked_sides, _weakness_codes)
+                                        _pruned_candidates, _ranked_candidates,
+                                        _ranked_sides, _weakness_codes)
 
 
 def random_state(seed, n=40, density=0.3):
@@ -43,11 +44,22 @@ def test_flat_sets_follow_the_generator(seed, level):
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_flat_level_one_follows_the_dense_ranking(seed):
     frozen, weakness, pairs = random_state(seed)
-    candidate, on_x = _level_one_candidates(pairs, frozen)
     rng = np.random.default_rng(seed)
-    candidate &= rng.random(candidate.shape) < 0.7  # some tests ruled out beforehand
+    possible = rng.random((len(pairs), frozen.shape[0])) < 0.7  # what a shortcut leaves
+    row_of = {tuple(p): i for i, p in enumerate(pairs.tolist())}
+    entries = _pruned_candidates(  # in blocks of 7 pairs, as the search sends them
+        pairs, frozen, lambda sub: possible[[row_of[tuple(p)] for p in sub.tolist()]],
+        block=7)
+    candidate, on_x = _level_one_candidates(pairs, frozen)
+    candidate &= possible
     count = candidate.sum(axis=1)
-    idx, owner, rank = _ranked_candidates(pairs, candidate, count, on_x, weakness)
+    (first, first_owner), rest = _ranked_candidates(pairs, *entries, weakness)
+    others, other_owner, other_rank = rest(np.ones(len(pairs), dtype=bool))
+    idx = np.concatenate([first, others])
+    owner = np.concatenate([first_owner, other_owner])
+    rank = np.concatenate([np.zeros(len(first), dtype=int), other_rank])
+    order = np.lexsort((rank, owner))
+    idx, owner, rank = idx[order], owner[order], rank[order]
     key = _candidate_keys(pairs, candidate, on_x, weakness)
     side_x, side_y = _ranked_sides(pairs, frozen, weakness)
     for i in range(len(pairs)):

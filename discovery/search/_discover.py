@@ -171,7 +171,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
-    rank = np.arange(len(names))
+    rank = list(range(len(names)))  # indices follow name order (a list: fast lookups)
 
     def why_forbidden(a, b):
         return knowledge.is_direction_forbidden(names[a], names[b])

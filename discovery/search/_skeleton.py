@@ -172,25 +172,71 @@ def _candidate_keys(pairs: np.ndarray, candidate: np.ndarray, on_x: np.ndarray,
     return key
 
 
-def _ranked_candidates(pairs: np.ndarray, candidate: np.ndarray, count: np.ndarray,
+def _pruned_candidates(pairs: np.ndarray, frozen: np.ndarray, may_separate: Callable,
+                       block: int):
+    """Each pair's single candidates that the test's shortcut leaves, as flat entries
+    ``(owner, z, on_x)`` (pair, candidate, whether it is on x's side), in pair order; None
+    when the test has no shortcut. Pairs go in blocks small enough for the cache: the
+    masks are passed over several times."""
+    n = frozen.shape[1]
+    owners, zs, sides = [], [], []
+    for start in range(0, len(pairs), block):
+        sub = pairs[start:start + block]
+        possible = may_separate(sub)
+        if possible is None:
+            return None
+        candidate, on_x = _level_one_candidates(sub, frozen)
+        candidate &= possible
+        flat = np.flatnonzero(candidate)
+        owner = np.repeat(np.arange(len(sub)), candidate.sum(axis=1))
+        owners.append(owner + start)
+        zs.append(flat - owner * n)
+        sides.append(on_x.ravel()[flat])
+    if not owners:
+        return np.empty(0, np.intp), np.empty(0, np.intp), np.empty(0, bool)
+    return np.concatenate(owners), np.concatenate(zs), np.concatenate(sides)
+
+
+def _ranked_candidates(pairs: np.ndarray, owner: np.ndarray, z: np.ndarray,
                        on_x: np.ndarray, weakness: np.ndarray):
-    """The candidates of a sparse ``candidate`` mask (``count`` per row) as flat arrays in
-    the order of :func:`_candidate_keys`: ``(idx, owner, rank)`` with rows ``[x, y, z]``, the
-    pair each row belongs to (a pair's rows contiguous) and the row's rank within its pair."""
-    n = candidate.shape[1]
-    owner = np.repeat(np.arange(len(pairs)), count)
-    z = np.flatnonzero(candidate) - owner * n
+    """Flat candidate entries (``owner``, ``z``, ``on_x`` as from :func:`_pruned_candidates`)
+    in the order of :func:`_candidate_keys`, as a function of which pairs are still open.
+
+    Returns ``(first, rest)``: ``first`` are the rows ``[x, y, z]`` of every pair's best
+    candidate with their owners; ``rest(open_pairs)`` gives ``(idx, owner, rank)`` for the
+    other candidates of the pairs still open (rank counted from 0 = the best), sorted only
+    then, since most pairs stop at their best candidate.
+    """
+    n = weakness.shape[1]
     shift = int(n).bit_length()
-    x, y = pairs[owner, 0], pairs[owner, 1]
-    key = np.maximum(weakness.take(x * n + z), weakness.take(y * n + z)).astype(np.int64)
-    key |= (~on_x[owner, z]).astype(np.int64) << _WEAK_BITS
+    key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
+                     weakness.take(pairs[owner, 1] * n + z)).astype(np.int64)
+    key |= (~on_x).astype(np.int64) << _WEAK_BITS
     key |= owner.astype(np.int64) << (_WEAK_BITS + 1)
     key <<= shift
     key |= z
-    order = np.argsort(key)
-    owner, idx = owner[order], np.column_stack([x[order], y[order], z[order]])
-    starts = np.searchsorted(owner, np.arange(len(pairs)))
-    return idx, owner, np.arange(len(owner)) - starts[owner]
+    starts = np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]]) if len(owner) else owner
+    best = np.zeros(len(owner), dtype=bool)
+    if len(owner):
+        best[key == np.repeat(np.minimum.reduceat(key, starts),
+                              np.diff(np.r_[starts, len(owner)]))] = True
+
+    def rows(chosen):
+        out = np.empty((len(chosen), 3), dtype=np.intp)
+        out[:, 0], out[:, 1], out[:, 2] = pairs[owner[chosen], 0], pairs[owner[chosen], 1], \
+            z[chosen]
+        return out
+
+    first = np.flatnonzero(best)
+
+    def rest(open_pairs: np.ndarray):
+        left = np.flatnonzero(~best & open_pairs[owner])
+        left = left[np.argsort(key[left])]
+        left_owner = owner[left]
+        begin = np.searchsorted(left_owner, left_owner)  # a pair's rows are contiguous
+        return rows(left), left_owner, np.arange(len(left)) - begin + 1
+
+    return (rows(first), owner[first]), rest
 
 
 def _rank_rows(key: np.ndarray, top: int | None) -> np.ndarray:
@@ -472,12 +518,12 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             removed_now.append(rows[:, :2])
             return hit_owners
 
-        def run_flat(all_idx, all_owner, all_rank, n_owners):
+        def run_flat(all_idx, all_owner, all_rank, n_owners, start=0):
             """Send candidate rows given as flat arrays in rounds (ranks lo..hi-1 of every
-            still-open owner)."""
+            still-open owner; ranks below ``start``, 0 or 1, were sent already)."""
             nonlocal done
             active = np.ones(n_owners, dtype=bool)
-            lo, hi = 0, 1
+            lo, hi = (0, 1) if start == 0 else (1, 3)
             while True:
                 if cancelled is not None and cancelled():
                     raise SearchCancelled("the search was stopped before it finished")
@@ -503,38 +549,19 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 width = hi - lo
                 lo, hi = hi, hi + (2 if width == 1 else 4 * width)
 
-        if cancelled is not None and cancelled():
-            raise SearchCancelled("the search was stopped before it finished")
-        if level == 0:
-            idx = pairs.copy()
-            p = answer(idx)
-            done = len(idx)
-            settle(idx, p, None)
-            if association is None:
-                association = np.zeros((n_vars, n_vars))
-                association[idx[:, 0], idx[:, 1]] = 1.0 - np.nan_to_num(p, nan=1.0)
-                association = np.maximum(association, association.T)
-            weakness = _weakness_codes(association)
-            if progress is not None:
-                progress({"phase": "skeleton", "level": level, "done": done,
-                          "planned": total})
-        elif level == 1:
-            # Candidates are ranked per pair in blocks (a pairs x variables matrix each), and
-            # round r sends every still-open pair its candidates ranked lo..hi-1.
+        def run_staged():
+            """Level 1 without a shortcut: rank candidates per pair in blocks (a pairs x
+            variables matrix each); round r sends every still-open pair its candidates
+            ranked lo..hi-1."""
+            nonlocal done
             block = max(1, 4_000_000 // max(n_vars, 1))
             for start in range(0, len(pairs), block):
                 sub = pairs[start:start + block]
                 candidate, on_x = _level_one_candidates(sub, frozen)
-                if may_separate is not None:
-                    possible = may_separate(sub)
-                    if possible is not None:
-                        candidate &= possible  # skip tests that cannot separate
+                possible = may_separate(sub) if may_separate is not None else None
+                if possible is not None:
+                    candidate &= possible  # skip tests that cannot separate
                 count = candidate.sum(axis=1)
-                if 8 * int(count.sum()) < candidate.size:
-                    # few candidates left: rank them as flat arrays
-                    run_flat(*_ranked_candidates(sub, candidate, count, on_x, weakness),
-                             len(sub))
-                    continue
                 key = _candidate_keys(sub, candidate, on_x, weakness)
                 gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
                 # Ranking is done in stages: the best candidate of every pair (one pass),
@@ -573,6 +600,35 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     if progress is not None:
                         progress({"phase": "skeleton", "level": level, "done": done,
                                   "planned": total})
+
+        if cancelled is not None and cancelled():
+            raise SearchCancelled("the search was stopped before it finished")
+        if level == 0:
+            idx = pairs.copy()
+            p = answer(idx)
+            done = len(idx)
+            settle(idx, p, None)
+            if association is None:
+                association = np.zeros((n_vars, n_vars))
+                association[idx[:, 0], idx[:, 1]] = 1.0 - np.nan_to_num(p, nan=1.0)
+                association = np.maximum(association, association.T)
+            weakness = _weakness_codes(association)
+            if progress is not None:
+                progress({"phase": "skeleton", "level": level, "done": done,
+                          "planned": total})
+        elif level == 1:
+            entries = None if may_separate is None else _pruned_candidates(
+                pairs, frozen, may_separate, block=max(64, 2 ** 18 // n_vars))
+            if entries is not None and 8 * len(entries[0]) < len(pairs) * n_vars:
+                # the test ruled most single candidates out: rank the few left as flat arrays
+                (idx, owner), rest = _ranked_candidates(pairs, *entries, weakness)
+                found = settle(idx, answer(idx), owner)  # every pair's best candidate
+                done += len(idx)
+                still = np.ones(len(pairs), dtype=bool)
+                still[found] = False
+                run_flat(*rest(still), len(pairs), start=1)
+            else:
+                run_staged()
         elif (flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
             # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
             run_flat(*flat, len(pairs))
