@@ -323,7 +323,8 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     """Every candidate set of every pair at once, in enumeration order, or None if too many.
 
     Returns ``(idx, owner, rank)``: rows ``[x, y, s1..sk]`` (sets ascending), the pair each
-    row belongs to (rows of a pair contiguous), and the row's position in its pair's order:
+    row belongs to, and the row's position in its pair's order (rows of equal rank come in
+    pair order, and a pair's rows in rank order):
     first the k-subsets of adj(x)\\{y}, then those of adj(y)\\{x} not inside adj(x), each in
     colex order of the ranked neighbours (:func:`_colex`), as :func:`_candidate_sets`.
     """
@@ -334,7 +335,7 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
     n_y = np.rint(comb(count_y, level)).astype(np.int64)
     if int(n_x.sum() + n_y.sum()) > limit:
         return None
-    pieces = []  # (owner, sets, position within the owner's rows)
+    pieces = []  # (owner, sets, position within the owner's order)
     for side, n_sets, ranked in ((0, n_x, ranked_x), (1, n_y, ranked_y)):
         owner = np.repeat(np.arange(m), n_sets)
         position = np.arange(len(owner)) - (np.cumsum(n_sets) - n_sets)[owner]
@@ -344,16 +345,12 @@ def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
             sets, owner = sets[keep], owner[keep]
             kept = np.bincount(owner, minlength=m)
             position = n_x[owner] + np.arange(len(owner)) - (np.cumsum(kept) - kept)[owner]
-            n_y = kept
         pieces.append((owner, sets, position))
-    total = n_x + n_y
-    starts = np.cumsum(total) - total
-    all_sets = np.empty((int(total.sum()), level), dtype=np.intp)
-    all_owner = np.empty(len(all_sets), dtype=np.intp)
-    rank = np.empty(len(all_sets), dtype=np.intp)
-    for owner, sets, position in pieces:
-        at = starts[owner] + position
-        all_sets[at], all_owner[at], rank[at] = sets, owner, position
+    # x's sides of all pairs, then y's: a pair's rows are not contiguous, but within any
+    # batch of ranks its rows still come in rank order, which is all the rounds need
+    all_owner = np.concatenate([piece[0] for piece in pieces])
+    all_sets = np.concatenate([piece[1] for piece in pieces])
+    rank = np.concatenate([piece[2] for piece in pieces])
     idx = np.empty((len(all_sets), level + 2), dtype=np.intp)
     idx[:, 0], idx[:, 1] = pairs[all_owner, 0], pairs[all_owner, 1]
     idx[:, 2:] = _sort_rows(all_sets)
@@ -503,7 +500,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             if owner_of_row is None:  # one row per pair (level 0)
                 hit_owners = chosen = hits
             else:
-                # first independent row of each owner (an owner's rows are contiguous)
+                # first independent row of each owner (a batch has its rows in rank order)
                 hit_owners, first = np.unique(owner_of_row[hits], return_index=True)
                 chosen = hits[first]
             rows, pvs = idx[chosen], p[chosen]
