@@ -61,7 +61,7 @@ def _best(fn, repeat):
     return best, out
 
 
-def _ratio_run(values, dataset, discover, repeat=3):
+def _ratio_run(values, dataset, discover, repeat=7):
     """Best-of-``repeat`` times of numpy's correlation matrix and of the search, interleaved
     so that both see the same machine load."""
     corr_times, search_times, result = [], [], None
@@ -133,7 +133,7 @@ def format_search(fig: dict) -> str:
         f"expected degree {fig['degree']}, {fig['rows']:,} rows; Fisher's z, α = 0.05, no "
         "depth limit. The search is timed on loaded data (`discover(dataset)`, after "
         "`prepare_frame`); reading a file is not timed. Times are wall-clock, the best of "
-        "three runs, the search and numpy's correlation matrix interleaved so both see the "
+        "seven runs, the search and numpy's correlation matrix interleaved so both see the "
         "same load.", "",
         "| figure | value |", "| --- | --- |",
         f"| numpy correlation matrix (`np.corrcoef`), default BLAS threads | "

@@ -456,7 +456,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     while max_depth is None or level <= max_depth:
         frozen = adj.copy()
         degree = frozen.sum(axis=1)
-        upper = upper[frozen[upper[:, 0], upper[:, 1]]]
+        upper = upper[frozen.ravel().take(upper[:, 0] * n_vars + upper[:, 1])]
         if conflicted:
             upper = np.array([p for p in map(tuple, upper) if p not in conflicted],
                              dtype=np.intp).reshape(-1, 2)
@@ -669,6 +669,9 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                            "seconds": round(time.perf_counter() - level_started, 6)})
         out.depth_reached = level
         level += 1
-    out.adjacent = [set(np.flatnonzero(row).tolist()) for row in adj]
+    out.adjacent = [set() for _ in range(n_vars)]
+    for a, b in np.argwhere(np.triu(adj, 1)).tolist():  # the few edges left
+        out.adjacent[a].add(b)
+        out.adjacent[b].add(a)
     out.unseparated_forbidden = sorted(ghosts)
     return out
