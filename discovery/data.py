@@ -214,7 +214,7 @@ class Dataset:
     @cached_property
     def variables(self) -> tuple[str, ...]:
         """The names of the usable columns, in file order."""
-        return tuple(self.frame.columns)
+        return tuple(self.frame.columns.tolist())
 
     @property
     def label(self) -> str:

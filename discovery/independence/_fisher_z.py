@@ -69,7 +69,7 @@ class FisherZ(IndependenceTest):
     def __init__(self, data, *, variables=None, missing: str = "drop",
                  fingerprint: str | None = None):
         if hasattr(data, "columns"):
-            variables = tuple(str(c) for c in data.columns)
+            variables = tuple(map(str, data.columns.tolist()))
             values = data.to_numpy(dtype=float)
         else:
             values = np.asarray(data, dtype=float)

@@ -124,8 +124,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         from ..data import check_collinearity, check_for_search
         check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
         frame = dataset.frame
-        if list(frame.columns) != sorted(frame.columns):
-            frame = frame[sorted(frame.columns)]
+        in_name_order = sorted(dataset.variables)
+        if list(dataset.variables) != in_name_order:
+            frame = frame[in_name_order]
         t_data = time.perf_counter()
         if test_name == "fisher-z" and not test_options:
             # the dataset is already hashed: name the data by that hash and the column order
@@ -136,8 +137,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         if test_name == "fisher-z":
             # reuse the test's correlation matrix for the collinearity check (one matrix)
             corr = getattr(test_obj, "_corr", None)
-            if corr is not None:
-                at = {v: i for i, v in enumerate(frame.columns)}
+            if corr is not None and list(dataset.variables) != in_name_order:
+                at = {v: i for i, v in enumerate(in_name_order)}
                 order = [at[v] for v in dataset.variables]
                 corr = corr[np.ix_(order, order)]
             check_collinearity(dataset, correlation=corr)
