@@ -99,10 +99,17 @@ def blas_threads(limit: int | None):
     BLAS made a 2-process kernel search 14 times slower (43 s against 3 s), and a Fisher's z
     search about a quarter slower after its correlation matrix.
     """
+    global _BLAS_CONTROLLER
     if limit is None:
         return contextlib.nullcontext()
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        return contextlib.nullcontext()
-    return threadpool_limits(limits=limit, user_api="blas")
+    if _BLAS_CONTROLLER is None:
+        try:
+            from threadpoolctl import ThreadpoolController
+        except ImportError:
+            return contextlib.nullcontext()
+        # finding the loaded libraries reads the process's memory map (milliseconds): once
+        _BLAS_CONTROLLER = ThreadpoolController()
+    return _BLAS_CONTROLLER.limit(limits=limit, user_api="blas")
+
+
+_BLAS_CONTROLLER = None
