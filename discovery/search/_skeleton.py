@@ -51,7 +51,7 @@ class SeparatingSets(Mapping):
     def __init__(self, n_vars: int):
         self._n = max(int(n_vars), 1)
         self._blocks: list[tuple[np.ndarray, np.ndarray]] = []
-        self._index = None  # (sorted pair keys, block of each, row of each)
+        self._index = None  # pair key -> record number (see _locate)
 
     def record(self, rows: np.ndarray, p: np.ndarray) -> None:
         """Record separating rows ``[x, y, s1..sk]`` (pairs not yet recorded) and p-values."""
@@ -59,35 +59,44 @@ class SeparatingSets(Mapping):
             self._blocks.append((rows, np.asarray(p, dtype=float)))
             self._index = None
 
-    def _lookup(self):
+    def _locate(self, want: np.ndarray) -> np.ndarray:
+        """Record number (over all blocks, in the order recorded) of each pair key in
+        ``want``, -1 where the pair was not recorded. The index is built on the first call:
+        a dense table of pair keys (up to 4,096 variables), else the keys sorted."""
         if self._index is None:
             keys = np.concatenate([rows[:, 0].astype(np.int64) * self._n + rows[:, 1]
                                    for rows, _ in self._blocks] or [np.empty(0, np.int64)])
-            block = np.repeat(np.arange(len(self._blocks)),
-                              [len(rows) for rows, _ in self._blocks])
-            row = np.concatenate([np.arange(len(rows)) for rows, _ in self._blocks]
-                                 or [np.empty(0, np.intp)])
-            order = np.argsort(keys, kind="stable")
-            self._index = keys[order], block[order], row[order]
-        return self._index
+            if self._n <= 4096:
+                table = np.full(self._n * self._n, -1, dtype=np.int64)
+                table[keys] = np.arange(len(keys))
+                self._index = table
+            else:
+                order = np.argsort(keys)
+                self._index = (keys[order], order)
+        if isinstance(self._index, np.ndarray):
+            return self._index[want]
+        keys, order = self._index
+        at = np.minimum(np.searchsorted(keys, want), max(len(keys) - 1, 0))
+        found = keys[at] == want if len(keys) else np.zeros(len(want), dtype=bool)
+        return np.where(found, order[at] if len(keys) else -1, -1)
 
     def __getitem__(self, pair):
         return self.many([pair])[0]
 
     def many(self, pairs) -> list[tuple[tuple[int, ...], float]]:
         """``(S, p)`` of each pair of ``pairs`` (``x < y``), looked up together."""
-        keys, block, row = self._lookup()
         pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
-        want = pairs[:, 0] * self._n + pairs[:, 1]
-        at = np.minimum(np.searchsorted(keys, want), max(len(keys) - 1, 0))
-        missing = np.flatnonzero(keys[at] != want) if len(keys) else np.arange(len(want))
-        if len(missing):
-            raise KeyError(tuple(pairs[missing[0]].tolist()))
-        out: list = [None] * len(want)
+        record = self._locate(pairs[:, 0] * self._n + pairs[:, 1])
+        if (record < 0).any():
+            raise KeyError(tuple(pairs[np.flatnonzero(record < 0)[0]].tolist()))
+        sizes = [len(rows) for rows, _ in self._blocks]
+        starts = np.cumsum(sizes) - sizes
+        block = np.searchsorted(starts, record, side="right") - 1
+        out: list = [None] * len(record)
         for b, (rows, p) in enumerate(self._blocks):
-            chosen = np.flatnonzero(block[at] == b)
+            chosen = np.flatnonzero(block == b)
             if len(chosen):
-                r = row[at[chosen]]
+                r = record[chosen] - starts[b]
                 for i, s, q in zip(chosen.tolist(), rows[r, 2:].tolist(), p[r].tolist()):
                     out[i] = (tuple(s), q)
         return out
@@ -96,7 +105,9 @@ class SeparatingSets(Mapping):
         return sum(len(rows) for rows, _ in self._blocks)
 
     def __iter__(self):
-        for key in self._lookup()[0].tolist():
+        keys = np.concatenate([rows[:, 0].astype(np.int64) * self._n + rows[:, 1]
+                               for rows, _ in self._blocks] or [np.empty(0, np.int64)])
+        for key in np.sort(keys).tolist():
             yield divmod(key, self._n)
 
     def items(self):
