@@ -371,7 +371,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     return SearchResult(
         variables=display, settings=settings, knowledge=knowledge, edges=tuple(edges),
         removed=removed, tests=tests,
-        triples=LazyRecords(lambda: orientation.triple_records(names)),
+        triples=LazyRecords(orientation.triple_records),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
         software=_software(), seed=getattr(test_obj, "seed", None))

@@ -33,9 +33,8 @@ collider that contradicts it is refused and reported.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from functools import partial
 from itertools import combinations
-from typing import Callable
+from typing import Callable, Sequence
 
 __all__ = ["OrientationOutcome", "orient"]
 
@@ -44,33 +43,46 @@ __all__ = ["OrientationOutcome", "orient"]
 class OrientationOutcome:
     """Arrowheads with their reasons, triple decisions and conflicts (internal, index space).
 
-    A reason's text may be left as a function that writes it (a search on hundreds of
-    variables decides thousands of triples, and most texts are never read): use
-    :meth:`reason` and :meth:`triple_records`, which write them.
+    A search on hundreds of variables decides thousands of triples and most reason texts are
+    never read, so a reason may be kept as what its text needs (see :meth:`write`): read them
+    with :meth:`reason` and :meth:`triple_records`.
     """
 
+    names: Sequence[str] = ()
+    key: Callable[[int], int] = int  # a variable's rank in name order
     heads: set[tuple[int, int]] = field(default_factory=set)        # (i, j): head at j
     reasons: dict[tuple[int, int], tuple[str, object]] = field(default_factory=dict)
     triples: list[tuple] = field(default_factory=list)  # (x, z, y, decision, reason)
     conflicts: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
 
+    def write(self, why) -> str:
+        """A reason's text from what was kept: the text itself; ``(z, sep)``, z is (not) in
+        the separating set; or ``(x, z, y, why)``, the collider x → z ← y and why."""
+        if isinstance(why, str):
+            return why
+        names = self.names
+        if len(why) == 2:
+            z, sep = why
+            members = ", ".join(names[v] for v in sorted(sep, key=self.key))
+            return (f"{names[z]} is {'in' if z in sep else 'not in'} the separating set "
+                    f"{{{members}}}")
+        x, z, y, inner = why
+        return f"collider {names[x]} → {names[z]} ← {names[y]}: {self.write(inner)}"
+
     def reason(self, edge: tuple[int, int]) -> tuple[str, str]:
         """``(kind, text)`` of the arrowhead ``edge`` (``(i, j)``: head at ``j``)."""
-        kind, text = self.reasons[edge]
-        return kind, _text(text)
+        kind, why = self.reasons[edge]
+        return kind, self.write(why)
 
-    def triple_records(self, names) -> list[dict]:
+    def triple_records(self) -> list[dict]:
         """Every unshielded triple as ``{"x", "z", "y", "decision", "reason"}``, ordered by
-        z, x, y (indices follow name order)."""
+        z, x, y in name order."""
+        names, key = self.names, self.key
         return [{"x": names[x], "z": names[z], "y": names[y], "decision": decision,
-                 "reason": _text(reason)}
-                for x, z, y, decision, reason in sorted(self.triples,
-                                                        key=lambda t: (t[1], t[0], t[2]))]
-
-
-def _text(text) -> str:
-    return text() if callable(text) else text
+                 "reason": self.write(why)}
+                for x, z, y, decision, why in sorted(
+                    self.triples, key=lambda t: (key(t[1]), key(t[0]), key(t[2])))]
 
 
 def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rule="standard",
@@ -96,13 +108,10 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     """
     check_knowledge = why_forbidden is not None or bool(locked_directions)
     why_forbidden = why_forbidden or (lambda a, b: None)
-    out = OrientationOutcome()
+    out = OrientationOutcome(names=names, key=rank.__getitem__)
     locked = set(locked_directions)
     unseparated = {(min(a, b), max(a, b)) for a, b in unseparated}
     key = rank.__getitem__
-
-    def name_set(s):
-        return _name_set(s, names, key)
 
     # 1. knowledge -------------------------------------------------------------------------
     for x in (sorted(range(len(adjacent)), key=key) if check_knowledge else ()):
@@ -142,21 +151,19 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
                 "set was found; left undecided")))
             continue
         sep, _ = next(found)
-        decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of,
-                                     names, name_set)
+        decision, reason = _classify(x, z, y, sep, collider_rule, separating_sets_of, names)
         if decision == "collider":
             refusal = (_collider_refusal(x, z, y, locked, why_forbidden, names)
                        if check_knowledge else None)
             if refusal:
                 decision = "refused"
-                reason = f"{_text(reason)}; refused: {refusal}"
+                reason = f"{out.write(reason)}; refused: {refusal}"
                 out.conflicts.append(
                     f"collider {names[x]} → {names[z]} ← {names[y]} refused: {refusal}")
             else:
                 for u in (x, y):
                     if (u, z) not in proposed:
-                        proposed[(u, z)] = ("collider", partial(
-                            _collider_text, x, z, y, reason, names))
+                        proposed[(u, z)] = ("collider", (x, z, y, reason))
         elif decision == "ambiguous":
             ambiguous.add((x, z, y))
         out.triples.append((x, z, y, decision, reason))
@@ -185,25 +192,11 @@ def _set_arrow(out, a, b, reason):
     out.reasons[(a, b)] = reason
 
 
-def _name_set(s, names, key) -> str:
-    return "{" + ", ".join(names[v] for v in sorted(s, key=key)) + "}"
-
-
-def _sepset_text(z, sep, names, name_set) -> str:
-    where = "in" if z in sep else "not in"
-    return f"{names[z]} is {where} the separating set {name_set(sep)}"
-
-
-def _collider_text(x, z, y, reason, names) -> str:
-    return f"collider {names[x]} → {names[z]} ← {names[y]}: {_text(reason)}"
-
-
-def _classify(x, z, y, sep, rule, separating_sets_of, names, name_set):
-    """``(decision, reason)``; under the standard rule the reason is left as a function that
-    writes it."""
+def _classify(x, z, y, sep, rule, separating_sets_of, names):
+    """``(decision, reason)``; under the standard rule the reason is ``(z, sep)``, written
+    when read (:meth:`OrientationOutcome.write`)."""
     if rule == "standard":
-        return ("non-collider" if z in sep else "collider",
-                partial(_sepset_text, z, sep, names, name_set))
+        return "non-collider" if z in sep else "collider", (z, sep)
     sets = separating_sets_of(x, y) or [sep]
     inside = sum(1 for s in sets if z in s)
     share = f"{names[z]} is in {inside} of {len(sets)} separating sets"
