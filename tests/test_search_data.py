@@ -250,3 +250,24 @@ def test_a_test_object_with_unsorted_columns_gives_the_same_result(sim15):
     assert [r.pvalue for r in b.removed] == pytest.approx([r.pvalue for r in a.removed],
                                                           rel=1e-9)
     assert len(a.tests) == len(b.tests)
+
+
+def test_batch_sizes_do_not_change_the_skeleton(monkeypatch):
+    # Rounds are capped in size and the last few thousand rows go in one batch; neither may
+    # change which pairs are removed nor the separating set kept (the first in order).
+    from discovery import FisherZ
+    from discovery.search import _skeleton
+    rng = np.random.default_rng(11)
+    frame = sample_linear_gaussian(random_dag(40, expected_degree=4, rng=rng), 800, rng=rng)
+    test = FisherZ(frame[sorted(frame.columns)])
+
+    def search():
+        return _skeleton.adjacency_search(40, test.pvalues_array, alpha=0.05,
+                                          association=test.association())
+    usual = search()
+    monkeypatch.setattr(_skeleton, "_MAX_BATCH", 7)
+    monkeypatch.setattr(_skeleton, "_ONE_BATCH", 0)
+    small = search()
+    assert small.adjacent == usual.adjacent
+    assert dict(small.sepsets.items()) == dict(usual.sepsets.items())
+    assert len(small.log) > len(usual.log)  # many more, smaller batches

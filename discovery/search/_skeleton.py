@@ -26,10 +26,10 @@ locked pairs are never removed, and a test that separates one is reported as a c
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from itertools import islice
 from typing import Callable
 
 import numpy as np
@@ -289,83 +289,81 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
         yield member, counts, ranked
 
 
-def _ranked_sides(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
-    """For each pair, adj(x)\\{y} and adj(y)\\{x} as lists, strongest candidates first."""
-    return [[order[i, :counts[i]].tolist() for i in range(len(pairs))]
-            for _, counts, order in _side_orders(pairs, frozen, weakness)]
-
-
 # A batch costs a fixed overhead worth a few thousand vectorised tests: when no more rows than
 # this are left at a level, a vectorised test gets them in one batch even if some pairs would
 # have stopped earlier.
 _ONE_BATCH = 4096
 
-_COMBOS: dict[tuple[int, int], np.ndarray] = {}
+_MAX_BATCH = 1_000_000  # at most about this many rows in one round
 
 
-def _colex(n: int, k: int) -> np.ndarray:
-    """All k-subsets of range(n) as ascending rows, in colexicographic order (cached).
+_SATURATE = 1 << 62  # set counts are capped here: no round ever reaches that far
 
-    Colex order sorts subsets by their largest member, then the next largest, and so on:
-    {0,1}, {0,2}, {1,2}, {0,3}, ... So the subsets of range(c) are its first C(c, k) rows
-    for every c, and over ranked neighbours, every set of the c strongest comes before any
-    set that needs a weaker one.
+
+class _LevelSets:
+    """The candidate sets of one level (size ``k``), numbered per pair and built a round at
+    a time.
+
+    A pair's sets are numbered from 0: the k-subsets of adj(x)\\{y} in colexicographic
+    order of its ranked neighbours, then those of adj(y)\\{x}. Colex order sorts subsets by
+    their largest member, then the next largest, ...: {1st, 2nd}, {1st, 3rd}, {2nd, 3rd},
+    {1st, 4th}, ... so every set of the c strongest candidates comes before any set that
+    needs a weaker one. A set of y's side that
+    lies inside adj(x) keeps its number but is never sent: it was tried from x's side. The
+    set at a number is found by unranking in the combinatorial number system (a set
+    {c1 < ... < ck} is number C(c1, 1) + ... + C(ck, k) in colex order), so only the sets a
+    round sends are ever built.
     """
-    rows = _COMBOS.get((n, k))
-    if rows is None:
-        rows = (np.array(list(_colex_subsets(range(n), k)), dtype=np.intp).reshape(-1, k)
-                if k else np.zeros((1, 0), dtype=np.intp))
-        if len(rows) <= 100_000:  # keep the small ones for the next level or search
-            _COMBOS[(n, k)] = rows
-    return rows
 
+    def __init__(self, pairs, frozen, weakness, level):
+        (self.member_x, count_x, self.ranked_x), (_, count_y, self.ranked_y) = \
+            _side_orders(pairs, frozen, weakness)
+        self.pairs, self.k = pairs, level
+        width = max(self.ranked_x.shape[1], self.ranked_y.shape[1], level)
+        # table[i][c] = C(c, i + 1), saturated; it unranks and counts
+        self.table = np.array([[min(math.comb(c, i), _SATURATE) for c in range(width + 1)]
+                               for i in range(1, level + 1)], dtype=np.int64)
+        self.n_x = self.table[-1][count_x]
+        self.slots = np.minimum(self.n_x + self.table[-1][count_y], _SATURATE)
 
-def _colex_subsets(items, k: int):
-    """Yield the k-subsets of ``items`` (a sequence) as tuples, lazily, in colex order."""
-    if k == 0:
-        yield ()
-        return
-    for last in range(k - 1, len(items)):
-        for head in _colex_subsets(items[:last], k - 1):
-            yield head + (items[last],)
+    def left(self, active: np.ndarray, lo: int) -> int:
+        """How many sets numbered ``lo`` or more the active pairs have (inside ones too)."""
+        return int(np.maximum(self.slots[active] - lo, 0).sum())
 
+    def batch(self, active: np.ndarray, lo: int, hi: int):
+        """Rows ``[x, y, s1..sk]`` (sets ascending) of the sets numbered lo..hi-1 of the
+        active pairs, and the pair of each row; each pair's rows in number order."""
+        act = np.flatnonzero(active & (self.slots > lo))
+        count = np.minimum(self.slots[act], hi) - lo
+        owner = np.repeat(act, count)
+        number = lo + np.arange(len(owner)) - np.repeat(np.cumsum(count) - count, count)
+        on_x = number < self.n_x[owner]
+        parts = []
+        for side, ranked in ((on_x, self.ranked_x), (~on_x, self.ranked_y)):
+            own = owner[side]
+            chosen = self._unrank(number[side] - (0 if ranked is self.ranked_x
+                                                  else self.n_x[own]))
+            sets = ranked[own[:, None], chosen]
+            if ranked is self.ranked_y:  # already tried from x's side
+                keep = ~self.member_x[own[:, None], sets].all(axis=1)
+                own, sets = own[keep], sets[keep]
+            parts.append((own, sets))
+        owner = np.concatenate([parts[0][0], parts[1][0]])
+        idx = np.empty((len(owner), self.k + 2), dtype=np.intp)
+        idx[:, 0], idx[:, 1] = self.pairs[owner, 0], self.pairs[owner, 1]
+        idx[:, 2:] = _sort_rows(np.concatenate([parts[0][1], parts[1][1]]))
+        return idx, owner
 
-def _flat_candidate_sets(pairs, frozen, weakness, level, limit=4_000_000):
-    """Every candidate set of every pair at once, in enumeration order, or None if too many.
-
-    Returns ``(idx, owner, rank)``: rows ``[x, y, s1..sk]`` (sets ascending), the pair each
-    row belongs to, and the row's position in its pair's order (rows of equal rank come in
-    pair order, and a pair's rows in rank order):
-    first the k-subsets of adj(x)\\{y}, then those of adj(y)\\{x} not inside adj(x), each in
-    colex order of the ranked neighbours (:func:`_colex`), as :func:`_candidate_sets`.
-    """
-    m = len(pairs)
-    (member_x, count_x, ranked_x), (_, count_y, ranked_y) = _side_orders(pairs, frozen,
-                                                                         weakness)
-    n_x = np.rint(comb(count_x, level)).astype(np.int64)
-    n_y = np.rint(comb(count_y, level)).astype(np.int64)
-    if int(n_x.sum() + n_y.sum()) > limit:
-        return None
-    pieces = []  # (owner, sets, position within the owner's order)
-    for side, n_sets, ranked in ((0, n_x, ranked_x), (1, n_y, ranked_y)):
-        owner = np.repeat(np.arange(m), n_sets)
-        position = np.arange(len(owner)) - (np.cumsum(n_sets) - n_sets)[owner]
-        sets = ranked[owner[:, None], _colex(ranked.shape[1], level)[position]]
-        if side == 1:
-            keep = ~member_x[owner[:, None], sets].all(axis=1)  # new: not inside adj(x)
-            sets, owner = sets[keep], owner[keep]
-            kept = np.bincount(owner, minlength=m)
-            position = n_x[owner] + np.arange(len(owner)) - (np.cumsum(kept) - kept)[owner]
-        pieces.append((owner, sets, position))
-    # x's sides of all pairs, then y's: a pair's rows are not contiguous, but within any
-    # batch of ranks its rows still come in rank order, which is all the rounds need
-    all_owner = np.concatenate([piece[0] for piece in pieces])
-    all_sets = np.concatenate([piece[1] for piece in pieces])
-    rank = np.concatenate([piece[2] for piece in pieces])
-    idx = np.empty((len(all_sets), level + 2), dtype=np.intp)
-    idx[:, 0], idx[:, 1] = pairs[all_owner, 0], pairs[all_owner, 1]
-    idx[:, 2:] = _sort_rows(all_sets)
-    return idx, all_owner, rank
+    def _unrank(self, number: np.ndarray) -> np.ndarray:
+        """Positions (in a ranked list) of the k-subsets at colex numbers ``number``."""
+        out = np.empty((len(number), self.k), dtype=np.intp)
+        rest = number.astype(np.int64)
+        for i in range(self.k, 0, -1):
+            # the largest c with C(c, i) <= rest
+            c = np.searchsorted(self.table[i - 1], rest, side="right") - 1
+            out[:, i - 1] = c
+            rest = rest - self.table[i - 1][c]
+        return out
 
 
 def _sort_rows(a: np.ndarray) -> np.ndarray:
@@ -382,20 +380,6 @@ def _sort_rows(a: np.ndarray) -> np.ndarray:
             np.maximum(cols[i], cols[i + 1], out=cols[i + 1])
             cols[i] = low
     return np.stack(cols, axis=1) if cols else a
-
-
-def _candidate_sets(side_x: list[int], side_y: list[int], level: int):
-    """Yield conditioning sets of size ``level`` from adj(x)\\{y}, then new ones from adj(y)\\{x}.
-
-    The sides come ranked (see :func:`_side_orders`), and each side's sets follow colex order
-    (:func:`_colex`); sets come out sorted ascending, as the cache's canonical rows need.
-    """
-    for s in _colex_subsets(side_x, level):
-        yield tuple(sorted(s))
-    in_x = set(side_x)
-    for s in _colex_subsets(side_y, level):
-        if not in_x.issuperset(s):
-            yield tuple(sorted(s))
 
 
 def _count_sets(pairs: np.ndarray, frozen: np.ndarray, degree: np.ndarray,
@@ -526,25 +510,26 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             removed_now.append(rows[:, :2])
             return hit_owners
 
-        def run_flat(all_idx, all_owner, all_rank, n_owners, start=0):
-            """Send candidate rows given as flat arrays in rounds (ranks lo..hi-1 of every
-            still-open owner; ranks below ``start``, 0 or 1, were sent already)."""
+        def run_rounds(batch, left, n_owners, start=0):
+            """Send each still-open pair its candidate sets ranked lo..hi-1, round after
+            round (1, then 2, 8, 32, ... sets; ranks below ``start``, 0 or 1, were sent
+            already). ``batch(active, lo, hi)`` builds a round's rows and their pairs;
+            ``left(active, lo)`` counts the rows not sent yet."""
             nonlocal done
             active = np.ones(n_owners, dtype=bool)
             lo, hi = (0, 1) if start == 0 else (1, 3)
             while True:
                 if cancelled is not None and cancelled():
                     raise SearchCancelled("the search was stopped before it finished")
-                take = (all_rank >= lo) & active[all_owner]
-                left = np.count_nonzero(take)
-                if not left:
+                remaining = left(active, lo)
+                if not remaining:
                     return
                 # a vectorised test takes the rest in one batch: fewer, fuller batches (a slow
                 # one keeps to rounds, so that no pair runs many tests past its separating set)
-                last = batch_limit is None and left <= _ONE_BATCH
-                if not last:
-                    take &= all_rank < hi
-                idx, owner = all_idx[take], all_owner[take]
+                last = batch_limit is None and remaining <= _ONE_BATCH
+                if not last:  # keep a round's rows within bounds
+                    hi = min(hi, lo + max(1, _MAX_BATCH // int(np.count_nonzero(active))))
+                idx, owner = batch(active, lo, _SATURATE if last else hi)
                 p = answer(idx)
                 done += len(idx)
                 found = settle(idx, p, owner)
@@ -555,7 +540,15 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                     return
                 active[found] = False
                 width = hi - lo
-                lo, hi = hi, hi + (2 if width == 1 else 4 * width)
+                lo, hi = hi, min(hi + (2 if width == 1 else 4 * width), _SATURATE)
+
+        def run_flat(all_idx, all_owner, all_rank, n_owners, start=0):
+            """:func:`run_rounds` over candidate rows given as flat arrays with their ranks."""
+            def rows(active, lo, hi):
+                take = (all_rank >= lo) & (all_rank < hi) & active[all_owner]
+                return all_idx[take], all_owner[take]
+            run_rounds(rows, lambda active, lo: int(np.count_nonzero(
+                (all_rank >= lo) & active[all_owner])), n_owners, start)
 
         def run_staged():
             """Level 1 without a shortcut: rank candidates per pair in blocks (a pairs x
@@ -637,39 +630,9 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 run_flat(*rest(still), len(pairs), start=1)
             else:
                 run_staged()
-        elif (flat := _flat_candidate_sets(pairs, frozen, weakness, level)) is not None:
-            # the whole level's candidate sets as arrays; round r sends ranks lo..hi-1
-            run_flat(*flat, len(pairs))
         else:
-            side_x, side_y = _ranked_sides(pairs, frozen, weakness)
-            iters = [_candidate_sets(sx, sy, level) for sx, sy in zip(side_x, side_y)]
-            active = list(range(len(pairs)))
-            chunk = 1
-            while active:
-                if cancelled is not None and cancelled():
-                    raise SearchCancelled("the search was stopped before it finished")
-                rows, owner_list, full = [], [], []
-                for o in active:
-                    x, y = int(pairs[o, 0]), int(pairs[o, 1])
-                    taken = 0
-                    for s in islice(iters[o], chunk):
-                        rows.extend((x, y, *s))
-                        taken += 1
-                    owner_list.extend([o] * taken)
-                    if taken == chunk:
-                        full.append(o)
-                if not owner_list:
-                    break
-                idx = np.asarray(rows, dtype=np.intp).reshape(len(owner_list), level + 2)
-                owner = np.asarray(owner_list)
-                p = answer(idx)
-                done += len(idx)
-                found = set(settle(idx, p, owner).tolist())
-                active = [o for o in full if o not in found]
-                chunk = chunk * 4 if chunk > 1 else 2
-                if progress is not None:
-                    progress({"phase": "skeleton", "level": level, "done": done,
-                              "planned": total})
+            sets = _LevelSets(pairs, frozen, weakness, level)
+            run_rounds(sets.batch, sets.left, len(pairs))
         gone = np.concatenate(removed_now) if removed_now else np.empty((0, 2), np.intp)
         if ghosts and len(gone):
             ghosts -= set(map(tuple, gone.tolist()))  # forbidden pairs now separated
