@@ -134,7 +134,7 @@ class FisherZ(IndependenceTest):
         critical = np.tanh(-ndtri(alpha / 2.0) / np.sqrt(n_eff)) + 1e-6
         gap = np.take(r, pairs[:, 0], axis=0)
         gap *= np.take(r, pairs[:, 1], axis=0)
-        gap -= r[pairs[:, 0], pairs[:, 1]][:, None]
+        gap -= r.ravel().take(pairs[:, 0] * r.shape[0] + pairs[:, 1])[:, None]
         np.abs(gap, out=gap)
         return ~(gap >= np.float32(critical))  # NaN stays possible
 

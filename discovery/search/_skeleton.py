@@ -198,10 +198,10 @@ def _pruned_candidates(pairs: np.ndarray, frozen: np.ndarray, may_separate: Call
             return None
         candidate, on_x = _level_one_candidates(sub, frozen)
         candidate &= possible
-        flat = np.flatnonzero(candidate)
-        owner = np.repeat(np.arange(len(sub)), candidate.sum(axis=1))
+        flat = np.flatnonzero(candidate)  # few entries: dividing them beats counting rows
+        owner, z = np.divmod(flat, n)
         owners.append(owner + start)
-        zs.append(flat - owner * n)
+        zs.append(z)
         sides.append(on_x.ravel()[flat])
     if not owners:
         return np.empty(0, np.intp), np.empty(0, np.intp), np.empty(0, bool)
@@ -273,7 +273,7 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
     for a, b in ((0, 1), (1, 0)):
         member = np.take(frozen, pairs[:, a], axis=0)
         member[rows, pairs[:, b]] = False
-        counts = member.sum(axis=1)
+        counts = np.count_nonzero(member, axis=1)
         owner = np.repeat(rows, counts)
         z = np.flatnonzero(member) - owner * n
         key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
@@ -450,7 +450,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     upper = np.argwhere(np.triu(adj, 1))  # the adjacent pairs x < y, in index order
     while max_depth is None or level <= max_depth:
         frozen = adj.copy()
-        degree = frozen.sum(axis=1)
+        degree = np.count_nonzero(frozen, axis=1)
         upper = upper[frozen.ravel().take(upper[:, 0] * n_vars + upper[:, 1])]
         if conflicted:
             upper = np.array([p for p in map(tuple, upper) if p not in conflicted],
@@ -562,7 +562,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                 possible = may_separate(sub) if may_separate is not None else None
                 if possible is not None:
                     candidate &= possible  # skip tests that cannot separate
-                count = candidate.sum(axis=1)
+                count = np.count_nonzero(candidate, axis=1)
                 key = _candidate_keys(sub, candidate, on_x, weakness)
                 gid = np.arange(start, start + len(sub))  # pair ids of the rows of `sub`
                 # Ranking is done in stages: the best candidate of every pair (one pass),
