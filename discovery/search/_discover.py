@@ -306,31 +306,30 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         np.maximum.at(max_p, ids[finite], log_p[finite])
     locked_pairs = knowledge.required_adjacent()
     heads = orientation.heads
+    pairs = [(x, y) for x in range(n) for y in skeleton.adjacent[x] if key(x) < key(y)]
+    flat = np.array([x * n + y for x, y in pairs], dtype=np.int64)
+    if keys is None:
+        at, ran = flat, n_tests[flat] > 0
+    else:
+        at = np.minimum(np.searchsorted(keys, flat), max(len(keys) - 1, 0))
+        ran = keys[at] == flat if len(keys) else np.zeros(len(flat), dtype=bool)
+    tests_run = np.where(ran, n_tests[at] if len(n_tests) else 0, 0).tolist()
+    largest = np.where(ran, max_p[at] if len(max_p) else np.nan, np.nan)
+    largest = np.where(np.isfinite(largest), largest, np.nan).tolist()
     edges = []
-    for x in range(len(names)):
-        for y in skeleton.adjacent[x]:
-            if key(y) < key(x):
-                continue
-            if keys is None:
-                k = x * n + y if n_tests[x * n + y] else None
-            else:
-                at = int(np.searchsorted(keys, x * n + y))
-                k = at if at < len(keys) and keys[at] == x * n + y else None
-            mp = -np.inf if k is None else max_p[k]
-            stats = dict(max_pvalue=float(mp) if np.isfinite(mp) else float("nan"),
-                         tests=0 if k is None else int(n_tests[k]),
-                         locked=frozenset((names[x], names[y])) in locked_pairs)
-            hx, hy = (y, x) in heads, (x, y) in heads
-            if hx and hy:
-                reason = "; ".join(orientation.reason(e)[1] for e in ((x, y), (y, x)))
-                edges.append(Edge(names[x], names[y], "contested", reason, "contested",
-                                  **stats))
-            elif hy or hx:
-                s, t = (x, y) if hy else (y, x)
-                kind, text = orientation.reason((s, t))
-                edges.append(Edge(names[s], names[t], "directed", text, kind, **stats))
-            else:
-                edges.append(Edge(names[x], names[y], "undirected", "", "", **stats))
+    for (x, y), count, mp in zip(pairs, tests_run, largest):
+        locked = bool(locked_pairs) and frozenset((names[x], names[y])) in locked_pairs
+        hx, hy = (y, x) in heads, (x, y) in heads
+        if hx and hy:
+            reason = "; ".join(orientation.reason(e)[1] for e in ((x, y), (y, x)))
+            edges.append(Edge(names[x], names[y], "contested", reason, "contested", mp,
+                              count, locked))
+        elif hy or hx:
+            s, t = (x, y) if hy else (y, x)
+            kind, text = orientation.reason((s, t))
+            edges.append(Edge(names[s], names[t], "directed", text, kind, mp, count, locked))
+        else:
+            edges.append(Edge(names[x], names[y], "undirected", "", "", mp, count, locked))
     edges.sort(key=lambda e: (e.source, e.target))
     forbidden_idx = {(min(index[a], index[b]), max(index[a], index[b]))
                      for a, b in knowledge.forbidden}
