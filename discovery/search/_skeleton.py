@@ -10,14 +10,16 @@ Maathuis 2014, "Order-independent constraint-based causal structure learning", J
 The separating set kept for a pair is the first independent one in a fixed enumeration:
 subsets of x's neighbours before y's, the candidates most associated with both x and y first
 (the test's association matrix, e.g. absolute correlations, or ``1 - p`` of the unconditional
-tests), ties broken by variable *name*. Variables are indexed in name order, so neither the
-sets recorded nor the tests run depend on column order. The ranking changes only which valid
-separating set is found first and how many tests that takes, never which pairs are removed.
+tests), ties broken by variable *name*, each side's k-subsets in colexicographic order.
+Variables are indexed in name order, so neither the sets recorded nor the tests run depend on
+column order. The ranking changes only which valid separating set is found first and how many
+tests that takes, never which pairs are removed.
 
 Each level is sent to the independence test as batches: every pair gets its next candidate
 sets (its best one, then 2, 8, 32, ... more), the batch is answered at once, pairs that found
-a separating set stop, the rest continue. Level 1 and the larger higher levels generate their
-candidates as arrays.
+a separating set stop, the rest continue. Candidates are built as arrays, a round at a time.
+At level 1 a test may rule single candidates out beforehand (``may_separate``): a test that
+cannot separate is not run.
 
 Knowledge enters here: forbidden pairs are never adjacent (they are not neighbours of anyone)
 but their separating set is still searched for, since collider decisions over them need it;
