@@ -10,8 +10,9 @@ The correlation matrix is computed once. A batch of triples with the same condit
 size is answered from the stack of their small correlation submatrices at once, not by a
 Python loop of regressions: the entries ``P`` needs come from eliminating ``S`` (the Schur
 complement, i.e. the residual covariance of ``x`` and ``y`` given ``S``), one conditioning
-variable at a time across the whole batch. With test-wise deletion (Tu, Zhang, Kjellström & Zhang 2019, "Causal discovery in
-the presence of missing data", AISTATS) each test uses the rows complete on its own variables.
+variable at a time across the whole batch. With test-wise deletion (Tu, Zhang, Kjellström &
+Zhang 2019, "Causal discovery in the presence of missing data", AISTATS) each test uses the
+rows complete on its own variables.
 
 References
 ----------
