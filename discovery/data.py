@@ -547,6 +547,12 @@ def _frame_fingerprint(frame: pd.DataFrame) -> str:
     """SHA-256 of the column names and values: numeric columns as float64 bytes, any other
     column as its CSV text (a canonical rendering that is cheap for large numeric tables)."""
     digest = hashlib.sha256()
+    if len(frame.columns) and all(t == np.float64 for t in frame.dtypes):
+        values = frame.to_numpy()  # all float64: one array, the same bytes column by column
+        for j, name in enumerate(frame.columns.tolist()):
+            digest.update(str(name).encode("utf-8") + b"\x00")
+            digest.update(np.ascontiguousarray(values[:, j]).tobytes())
+        return digest.hexdigest()
     for i, name in enumerate(frame.columns):
         column = frame.iloc[:, i]
         digest.update(str(name).encode("utf-8") + b"\x00")
@@ -656,25 +662,31 @@ def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool
 
     Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
     """
-    floats = [n for n in names if table[n].dtype == np.float64]
+    floats = [n for n, t in zip(names, table.dtypes) if t == np.float64]
     if not floats:
         return {}
     values = table[floats].to_numpy()
-    out = {}
     with np.errstate(invalid="ignore"):
-        lo, hi = np.nanmin(np.where(np.isnan(values), np.inf, values), axis=0), \
-            np.nanmax(np.where(np.isnan(values), -np.inf, values), axis=0)
-        finite = np.isfinite(values) | np.isnan(values)
-        whole = np.all(np.isnan(values) | (finite & (values == np.round(values))), axis=0)
-        two = np.all(np.isnan(values) | (values == lo) | (values == hi), axis=0)
+        gaps = np.isnan(values)
+        if gaps.any():  # smallest and largest values, whole numbers and two values: of the rest
+            lo = np.where(gaps, np.inf, values).min(axis=0)
+            hi = np.where(gaps, -np.inf, values).max(axis=0)
+            whole = np.all(gaps | (np.isfinite(values) & (values == np.round(values))), axis=0)
+            two = np.all(gaps | (values == lo) | (values == hi), axis=0)
+        else:
+            lo, hi = values.min(axis=0), values.max(axis=0)
+            whole = np.all(np.isfinite(values) & (values == np.round(values)), axis=0)
+            two = np.all((values == lo) | (values == hi), axis=0)
+    infinite = (lo == -np.inf) | (hi == np.inf)  # an infinity among the values
+    out = {}
     for j, n in enumerate(floats):
-        if np.isinf(lo[j]) and np.isinf(hi[j]) and lo[j] > hi[j]:
+        if lo[j] > hi[j]:
             out[n] = ("continuous", 0, True)  # all missing
         elif lo[j] == hi[j]:
             out[n] = ("continuous", 1, bool(whole[j]))
         elif two[j]:
             out[n] = ("binary", 2, bool(whole[j]))
-        elif whole[j] or not np.all(np.isfinite(values[:, j][~np.isnan(values[:, j])])):
+        elif whole[j] or infinite[j]:
             column = table[n]
             out[n] = (column_kind(column), int(column.nunique(dropna=True)), bool(whole[j]))
         else:
@@ -683,17 +695,16 @@ def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool
 
 
 def _flat_columns(block: pd.DataFrame) -> list[str]:
-    """Columns of ``block`` with fewer than two distinct values."""
-    out = []
-    for n in block.columns:
-        column = block[n]
-        if column.dtype == np.float64:
-            v = column.to_numpy()
-            if len(v) == 0 or v.min() == v.max():
-                out.append(n)
-        elif column.nunique() < 2:
-            out.append(n)
-    return out
+    """Columns of ``block`` with fewer than two distinct values (float columns at once)."""
+    floats = {n for n, t in zip(block.columns, block.dtypes) if t == np.float64}
+    flat = set(floats)  # with no rows, every column is flat
+    if floats and len(block):
+        names = [n for n in block.columns if n in floats]
+        values = block[names].to_numpy()
+        same = (values.min(axis=0) == values.max(axis=0)).tolist()
+        flat = {n for n, s in zip(names, same) if s}
+    return [n for n in block.columns
+            if (n in flat if n in floats else block[n].nunique() < 2)]
 
 
 def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str | None,
