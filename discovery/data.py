@@ -84,6 +84,7 @@ import hashlib
 import io
 import re
 import warnings
+from collections import Counter
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from functools import cached_property
@@ -710,10 +711,11 @@ def _flat_columns(block: pd.DataFrame) -> list[str]:
 def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str | None,
              label: str, sha256: str) -> tuple[Dataset, list[str]]:
     names = [str(c) for c in frame.columns]
-    duplicates = [n for n in dict.fromkeys(names) if names.count(n) > 1]
+    counted = Counter(names)
+    duplicates = [n for n in counted if counted[n] > 1]
     if duplicates:
         raise _fail(label, f"column name {duplicates[0]!r} appears "
-                           f"{names.count(duplicates[0])} times; rename the copies")
+                           f"{counted[duplicates[0]]} times; rename the copies")
     table = frame.copy()
     table.columns = names
     table = table.reset_index(drop=True)
@@ -727,7 +729,7 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     fast = _float_profile(table, names)
     kinds = {n: fast[n][0] if n in fast else column_kind(table[n]) for n in names}
     shares = table.isna().mean()
-    missing_share = {n: float(shares.iloc[i]) for i, n in enumerate(names)}
+    missing_share = dict(zip(names, map(float, shares.tolist())))
     levels = {n: fast[n][1] if n in fast else int(table[n].nunique(dropna=True))
               for n in names}
 
