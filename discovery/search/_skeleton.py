@@ -210,6 +210,22 @@ def _pruned_candidates(pairs: np.ndarray, frozen: np.ndarray, may_separate: Call
     return np.concatenate(owners), np.concatenate(zs), np.concatenate(sides)
 
 
+def _entry_keys(pairs: np.ndarray, owner: np.ndarray, z: np.ndarray, weakness: np.ndarray,
+                y_side: np.ndarray | None = None) -> np.ndarray:
+    """Sort keys (int64) of flat candidate entries, candidate ``z`` of pair ``owner``: by pair,
+    then x's side before y's (when ``y_side`` is given), then strongest first (smallest
+    ``max(weakness[x, z], weakness[y, z])``), then index (= name) order."""
+    n = weakness.shape[1]
+    key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
+                     weakness.take(pairs[owner, 1] * n + z)).astype(np.int64)
+    if y_side is not None:
+        key |= y_side.astype(np.int64) << _WEAK_BITS
+    key |= owner.astype(np.int64) << (_WEAK_BITS + 1)
+    key <<= int(n).bit_length()
+    key |= z
+    return key
+
+
 def _ranked_candidates(pairs: np.ndarray, owner: np.ndarray, z: np.ndarray,
                        on_x: np.ndarray, weakness: np.ndarray):
     """Flat candidate entries (``owner``, ``z``, ``on_x`` as from :func:`_pruned_candidates`)
@@ -220,14 +236,7 @@ def _ranked_candidates(pairs: np.ndarray, owner: np.ndarray, z: np.ndarray,
     other candidates of the pairs still open (rank counted from 0 = the best), sorted only
     then, since most pairs stop at their best candidate.
     """
-    n = weakness.shape[1]
-    shift = int(n).bit_length()
-    key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
-                     weakness.take(pairs[owner, 1] * n + z)).astype(np.int64)
-    key |= (~on_x).astype(np.int64) << _WEAK_BITS
-    key |= owner.astype(np.int64) << (_WEAK_BITS + 1)
-    key <<= shift
-    key |= z
+    key = _entry_keys(pairs, owner, z, weakness, y_side=~on_x)
     starts = np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]]) if len(owner) else owner
     best = np.zeros(len(owner), dtype=bool)
     if len(owner):
@@ -271,19 +280,13 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
     rows of a ``(pairs, largest count)`` array padded with -1."""
     rows = np.arange(len(pairs))
     n = frozen.shape[1]
-    shift = int(n).bit_length()
     for a, b in ((0, 1), (1, 0)):
         member = np.take(frozen, pairs[:, a], axis=0)
         member[rows, pairs[:, b]] = False
         counts = np.count_nonzero(member, axis=1)
         owner = np.repeat(rows, counts)
         z = np.flatnonzero(member) - owner * n
-        key = np.maximum(weakness.take(pairs[owner, 0] * n + z),
-                         weakness.take(pairs[owner, 1] * n + z)).astype(np.int64)
-        key |= owner.astype(np.int64) << _WEAK_BITS
-        key <<= shift
-        key |= z
-        z = z[np.argsort(key)]
+        z = z[np.argsort(_entry_keys(pairs, owner, z, weakness))]
         ranked = np.full((len(pairs), int(counts.max()) if len(pairs) else 0), -1,
                          dtype=np.intp)
         starts = np.cumsum(counts) - counts
@@ -295,10 +298,7 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
 # this are left at a level, a vectorised test gets them in one batch even if some pairs would
 # have stopped earlier.
 _ONE_BATCH = 4096
-
 _MAX_BATCH = 1_000_000  # at most about this many rows in one round
-
-
 _SATURATE = 1 << 62  # set counts are capped here: no round ever reaches that far
 
 
@@ -310,11 +310,10 @@ class _LevelSets:
     order of its ranked neighbours, then those of adj(y)\\{x}. Colex order sorts subsets by
     their largest member, then the next largest, ...: {1st, 2nd}, {1st, 3rd}, {2nd, 3rd},
     {1st, 4th}, ... so every set of the c strongest candidates comes before any set that
-    needs a weaker one. A set of y's side that
-    lies inside adj(x) keeps its number but is never sent: it was tried from x's side. The
-    set at a number is found by unranking in the combinatorial number system (a set
-    {c1 < ... < ck} is number C(c1, 1) + ... + C(ck, k) in colex order), so only the sets a
-    round sends are ever built.
+    needs a weaker one. A set of y's side that lies inside adj(x) keeps its number but is
+    never sent: it was tried from x's side. The set at a number is found by unranking in the
+    combinatorial number system (a set {c1 < ... < ck} is number C(c1, 1) + ... + C(ck, k) in
+    colex order), so only the sets a round sends are ever built.
     """
 
     def __init__(self, pairs, frozen, weakness, level):
@@ -340,20 +339,15 @@ class _LevelSets:
         owner = np.repeat(act, count)
         number = lo + np.arange(len(owner)) - np.repeat(np.cumsum(count) - count, count)
         on_x = number < self.n_x[owner]
-        parts = []
-        for side, ranked in ((on_x, self.ranked_x), (~on_x, self.ranked_y)):
-            own = owner[side]
-            chosen = self._unrank(number[side] - (0 if ranked is self.ranked_x
-                                                  else self.n_x[own]))
-            sets = ranked[own[:, None], chosen]
-            if ranked is self.ranked_y:  # already tried from x's side
-                keep = ~self.member_x[own[:, None], sets].all(axis=1)
-                own, sets = own[keep], sets[keep]
-            parts.append((own, sets))
-        owner = np.concatenate([parts[0][0], parts[1][0]])
+        own_x, own_y = owner[on_x], owner[~on_x]
+        sets_x = self.ranked_x[own_x[:, None], self._unrank(number[on_x])]
+        sets_y = self.ranked_y[own_y[:, None],
+                               self._unrank(number[~on_x] - self.n_x[own_y])]
+        new = ~self.member_x[own_y[:, None], sets_y].all(axis=1)  # not tried from x's side
+        owner = np.concatenate([own_x, own_y[new]])
         idx = np.empty((len(owner), self.k + 2), dtype=np.intp)
         idx[:, 0], idx[:, 1] = self.pairs[owner, 0], self.pairs[owner, 1]
-        idx[:, 2:] = _sort_rows(np.concatenate([parts[0][1], parts[1][1]]))
+        idx[:, 2:] = _sort_rows(np.concatenate([sets_x, sets_y[new]]))
         return idx, owner
 
     def _unrank(self, number: np.ndarray) -> np.ndarray:
