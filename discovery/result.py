@@ -220,12 +220,24 @@ class Edge:
     def pair(self) -> frozenset[str]:
         return frozenset((self.source, self.target))
 
+    @property
+    def from_mark(self) -> str:
+        """The mark at the ``source`` end: ``tail``, ``arrow`` or ``circle`` (one code path for
+        every search mode; a contested edge has tails at both ends, its kind says why)."""
+        return "tail"
+
+    @property
+    def to_mark(self) -> str:
+        """The mark at the ``target`` end: ``tail``, ``arrow`` or ``circle``."""
+        return "arrow" if self.kind == "directed" else "tail"
+
     def arrow(self) -> str:
         mark = {"directed": "→", "undirected": "—", "contested": "↔"}[self.kind]
         return f"{self.source} {mark} {self.target}"
 
     def to_dict(self) -> dict:
         return {"from": self.source, "to": self.target, "kind": self.kind,
+                "from_mark": self.from_mark, "to_mark": self.to_mark,
                 "reason": self.reason, "reason_kind": self.reason_kind,
                 "max_pvalue": _num(self.max_pvalue), "tests": self.tests,
                 "locked": self.locked}
