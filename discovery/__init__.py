@@ -28,7 +28,8 @@ __version__ = "0.1.0"
 
 from .data import Dataset, check_for_search, column_kind, prepare_frame, read_table
 from .exceptions import (DataValidationError, DegenerateDataWarning, DiscoveryError,
-                         KnowledgeError, ResultFormatError, SearchCancelled,
+                         KnowledgeError, ResourceLimitError, ResultFormatError,
+                         SearchCancelled,
                          SearchLimitWarning, SettingsError)
 from .independence import DSeparationOracle, FisherZ, PValueCache
 from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
@@ -43,5 +44,5 @@ __all__ = [
     "SearchSettings", "PARAMETERS",
     "DSeparationOracle", "FisherZ", "PValueCache",
     "DiscoveryError", "DataValidationError", "KnowledgeError", "SettingsError",
-    "ResultFormatError", "SearchCancelled", "DegenerateDataWarning", "SearchLimitWarning",
+    "ResultFormatError", "ResourceLimitError", "SearchCancelled", "DegenerateDataWarning", "SearchLimitWarning",
 ]

@@ -189,12 +189,49 @@ def _output_path(value: str | None, option: str, suffixes=None) -> Path | None:
 
 
 def _write(path: Path, option: str, writer) -> None:
+    """Write one output atomically (see :func:`_write_outputs`)."""
+    _write_outputs([(option, path, writer)])
+
+
+def _write_outputs(outputs) -> None:
+    """Write a command's ``(option, path, writer)`` outputs together or not at all: each is
+    rendered to a temporary file beside its destination, and they are put in place only when
+    every one was rendered, so a failure never leaves some outputs new and others old."""
+    from .files import write_all_or_nothing
+
+    def guarded(option, path, writer):
+        def write(tmp):
+            try:
+                writer(tmp)
+            except OSError as err:
+                raise CommandError(f"{option} {path}: cannot write ({err.strerror or err}); "
+                                   "choose another path") from None
+        return write
+
+    staged = [(path, guarded(option, path, writer)) for option, path, writer in outputs
+              if path is not None]
     try:
-        path.parent.mkdir(parents=True, exist_ok=True)
-        writer(path)
+        write_all_or_nothing(staged)
     except OSError as err:
-        raise CommandError(f"{option} {path}: cannot write ({err.strerror or err}); "
-                           "choose another path") from None
+        raise CommandError(f"{err.filename or 'output'}: cannot write "
+                           f"({err.strerror or err}); choose another path") from None
+
+
+def _guard_outputs(outputs: dict, inputs) -> None:
+    """Refuse an output that is one of the inputs (same path or a hard link to it) or that
+    another output also names."""
+    from .files import same_file
+    inputs = [Path(p) for p in inputs if p]
+    named = [(option, path) for option, path in outputs.items() if path is not None]
+    for i, (option, path) in enumerate(named):
+        for source in inputs:
+            if same_file(path, source):
+                raise CommandError(f"{option} {path}: would overwrite an input file ({source}); "
+                                   "choose another path")
+        for other, other_path in named[:i]:
+            if same_file(path, other_path):
+                raise CommandError(f"{option} {path}: {other} names the same file; give each "
+                                   "output its own path")
 
 
 def _cmd_discover(args) -> int:
@@ -220,13 +257,7 @@ def _cmd_discover(args) -> int:
         "--graphml": _output_path(args.graphml, "--graphml", [".graphml"]),
         "--figure": _output_path(args.figure, "--figure", [".png", ".svg", ".pdf"]),
     }
-    inputs = {Path(args.data).resolve()}
-    if args.knowledge:
-        inputs.add(Path(args.knowledge).resolve())
-    for option, path in outputs.items():
-        if path is not None and path.resolve() in inputs:
-            raise CommandError(f"{option} {path}: would overwrite an input file; choose "
-                               "another path")
+    _guard_outputs(outputs, [args.data, args.knowledge])
     columns = [c.strip() for c in args.columns.split(",") if c.strip()] if args.columns \
         else None
     dataset = read_table(args.data, columns=columns, missing=args.missing)
@@ -242,17 +273,14 @@ def _cmd_discover(args) -> int:
                               progress=progress, test_options=test_options or None)
         finally:
             progress.close()
-    if outputs["--out"]:
-        _write(outputs["--out"], "--out", result.to_json)
-    if outputs["--dot"] or outputs["--graphml"]:
-        from .io import write_dot, write_graphml
-        if outputs["--dot"]:
-            _write(outputs["--dot"], "--dot", lambda p: write_dot(result, p))
-        if outputs["--graphml"]:
-            _write(outputs["--graphml"], "--graphml", lambda p: write_graphml(result, p))
-    if outputs["--figure"]:
-        from .drawing import draw_result
-        _write(outputs["--figure"], "--figure", lambda p: draw_result(result, p))
+    from .drawing import draw_result
+    from .io import write_dot, write_graphml
+    _write_outputs([
+        ("--out", outputs["--out"], result.to_json),
+        ("--dot", outputs["--dot"], lambda p: write_dot(result, p)),
+        ("--graphml", outputs["--graphml"], lambda p: write_graphml(result, p)),
+        ("--figure", outputs["--figure"], lambda p: draw_result(result, p)),
+    ])
     if not args.quiet:
         print(result.summary().as_text(assumptions=False))
         written = [f"{opt} {p}" for opt, p in outputs.items() if p is not None]
@@ -292,8 +320,11 @@ def _cmd_simulate(args) -> int:
 
     from .simulate import random_dag, sample_linear_gaussian
 
+    from .resources import check_simulation_memory
+
     out = _output_path(args.out, "--out", [".csv"])
     truth_path = _output_path(args.truth, "--truth", [".csv"])
+    _guard_outputs({"--out": out, "--truth": truth_path}, [args.diagram])
     if args.rows < 1:
         raise CommandError(f"--rows {args.rows}: must be at least 1")
     rng = np.random.default_rng(args.seed)
@@ -308,13 +339,14 @@ def _cmd_simulate(args) -> int:
         if not 0 <= args.degree <= args.nodes - 1:
             raise CommandError(f"--degree {args.degree}: must be between 0 and nodes - 1 "
                                f"({args.nodes - 1})")
+        check_simulation_memory(args.rows, args.nodes)
         dag = random_dag(args.nodes, expected_degree=args.degree, rng=rng)
+    check_simulation_memory(args.rows, dag.number_of_nodes())
     frame = sample_linear_gaussian(dag, args.rows, rng=rng)
-    _write(out, "--out", lambda p: frame.to_csv(p, index=False))
-    if truth_path:
-        import pandas as pd
-        edges = pd.DataFrame(sorted(dag.edges), columns=["from", "to"])
-        _write(truth_path, "--truth", lambda p: edges.to_csv(p, index=False))
+    import pandas as pd
+    edges = pd.DataFrame(sorted(dag.edges), columns=["from", "to"])
+    _write_outputs([("--out", out, lambda p: frame.to_csv(p, index=False)),
+                    ("--truth", truth_path, lambda p: edges.to_csv(p, index=False))])
     print(f"Wrote {args.rows} rows of {dag.number_of_nodes()} variables "
           f"({dag.number_of_edges()} true edges) to {out}"
           + (f"; true edges to {truth_path}" if truth_path else ""))

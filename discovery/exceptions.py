@@ -11,6 +11,7 @@ __all__ = [
     "SettingsError",
     "ResultFormatError",
     "SearchCancelled",
+    "ResourceLimitError",
     "DegenerateDataWarning",
     "SearchLimitWarning",
 ]
@@ -38,6 +39,10 @@ class ResultFormatError(DiscoveryError, ValueError):
 
 class SearchCancelled(DiscoveryError):
     """The search was stopped by its cancel flag before it finished; no result exists."""
+
+
+class ResourceLimitError(DiscoveryError, MemoryError):
+    """The work would need more memory than the machine has; refused before allocating."""
 
 
 class DegenerateDataWarning(UserWarning):

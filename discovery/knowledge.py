@@ -26,7 +26,6 @@ The knowledge file is TOML (or JSON with the same keys), written by hand::
 from __future__ import annotations
 
 import json
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Iterable
@@ -34,6 +33,7 @@ from typing import Iterable
 import networkx as nx
 
 from .exceptions import KnowledgeError
+from .files import parse_json_checked, parse_toml_checked, read_text_checked, write_text_atomic
 
 __all__ = ["Knowledge", "read_knowledge", "write_knowledge"]
 
@@ -50,6 +50,9 @@ def _pairs(values, field_name) -> tuple[tuple[str, str], ...]:
         if isinstance(item, str):
             raise KnowledgeError(f"'{field_name}' entries must be pairs like [\"a\", \"b\"]; "
                                  f"got the string {item!r}")
+        if not isinstance(item, (list, tuple)):
+            raise KnowledgeError(f"'{field_name}' entries must be pairs like [\"a\", \"b\"]; "
+                                 f"got {item!r}")
         item = tuple(item)
         if len(item) != 2 or not all(isinstance(v, str) for v in item):
             raise KnowledgeError(f"'{field_name}' entries must be pairs of variable names; "
@@ -97,7 +100,11 @@ class Knowledge:
             if isinstance(group, str):
                 raise KnowledgeError("'stages' is a list of groups, each a list of names; "
                                      f"got the string {group!r} as a group")
-            stages.append(tuple(str(v) for v in group))
+            if not isinstance(group, (list, tuple)) or not all(isinstance(v, str)
+                                                                for v in group):
+                raise KnowledgeError("'stages' is a list of groups, each a list of names like "
+                                     f"[\"age\", \"sex\"]; got {group!r} as a group")
+            stages.append(tuple(group))
         object.__setattr__(self, "stages", tuple(g for g in stages if g))
         self._check_consistent()
 
@@ -244,18 +251,18 @@ def read_knowledge(path) -> Knowledge:
         If the file is missing, not valid TOML/JSON, or its content is inconsistent.
     """
     path = Path(path)
+    text = read_text_checked(path, what="knowledge file", error=KnowledgeError,
+                             max_bytes=16 * 2**20)
+    note = "; see docs/knowledge.md for the format"
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise KnowledgeError(f"{path}: knowledge file not found; check the path") from None
-    except (OSError, UnicodeDecodeError) as err:
-        raise KnowledgeError(f"{path}: cannot read the knowledge file ({err})") from None
-    kind = "JSON" if path.suffix.lower() == ".json" else "TOML"
-    try:
-        values = json.loads(text) if kind == "JSON" else tomllib.loads(text)
-    except (json.JSONDecodeError, tomllib.TOMLDecodeError) as err:
-        raise KnowledgeError(f"{path}: not valid {kind} ({err}); see docs/knowledge.md for "
-                             "the format") from None
+        if path.suffix.lower() == ".json":
+            values = parse_json_checked(text, source=str(path), error=KnowledgeError)
+        else:
+            values = parse_toml_checked(text, source=str(path), error=KnowledgeError)
+    except KnowledgeError as err:
+        raise KnowledgeError(f"{err}{note}") from None
+    if not isinstance(values, dict):
+        raise KnowledgeError(f"{path}: the file must hold a table of keys{note}")
     return Knowledge.from_dict(values, source=str(path))
 
 
@@ -276,4 +283,4 @@ def write_knowledge(knowledge: Knowledge, path) -> None:
         f"forbidden_directions = {pairs(knowledge.forbidden_directions)}  # a -> b may not appear",
         "",
     ])
-    Path(path).write_text(text, encoding="utf-8")
+    write_text_atomic(path, text)

@@ -22,6 +22,7 @@ import networkx as nx
 import numpy as np
 
 from .exceptions import ResultFormatError
+from .files import parse_json_checked, read_text_checked, write_text_atomic
 from .knowledge import Knowledge
 from .settings import SearchSettings
 
@@ -439,7 +440,7 @@ class SearchResult:
         """The JSON text; also written to ``path`` when given."""
         text = json.dumps(self.to_dict(), indent=indent, ensure_ascii=False)
         if path is not None:
-            Path(path).write_text(text + "\n", encoding="utf-8")
+            write_text_atomic(path, text + "\n")
         return text
 
     @classmethod
@@ -457,12 +458,8 @@ class SearchResult:
 def load_result(path) -> SearchResult:
     """Read a result JSON file written by :meth:`SearchResult.to_json`."""
     path = Path(path)
-    try:
-        doc = json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ResultFormatError(f"{path}: file not found") from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as err:
-        raise ResultFormatError(f"{path}: not a readable JSON file ({err})") from None
+    text = read_text_checked(path, what="result file", error=ResultFormatError)
+    doc = parse_json_checked(text, source=str(path), error=ResultFormatError)
     return SearchResult.from_dict(doc, source=str(path))
 
 

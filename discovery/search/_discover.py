@@ -122,7 +122,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         if dataset.missing != settings.missing:  # a Dataset carries its own policy
             settings = dataclasses.replace(settings, missing=dataset.missing)
         from ..data import check_collinearity, check_for_search
+        from ..resources import check_search_memory
         check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
+        check_search_memory(len(dataset.variables), len(dataset.frame))
         frame = dataset.frame
         in_name_order = sorted(dataset.variables)
         if list(dataset.variables) != in_name_order:
