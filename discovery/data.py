@@ -415,9 +415,23 @@ def read_input_bytes(file: Path, label: str, *, what: str = "a CSV, TSV or Parqu
     """The bytes of an input file, or one clear DataValidationError saying why not.
 
     Shared by every reader of user files (tables here, known diagrams in :mod:`discovery.io`);
-    the file is only read, never changed.
+    the file is only read, never changed. Devices, pipes and link loops are refused before
+    reading, and so is a file larger than the memory available to hold it.
     """
+    import errno
+    import os
+    import stat
+
+    from .resources import available_memory
     try:
+        info = os.stat(file)
+        if stat.S_ISREG(info.st_mode) and info.st_size * 3 > available_memory():
+            raise _fail(label, f"{info.st_size / 2**30:,.1f} GiB is more than this machine's "
+                               "memory can read and check; keep the columns and rows you "
+                               "need in a smaller file")
+        if not stat.S_ISREG(info.st_mode) and not stat.S_ISDIR(info.st_mode):
+            raise _fail(label, f"is not a regular file (a device or pipe); give the path of "
+                               f"{what}")
         raw = Path(file).read_bytes()
     except FileNotFoundError:
         raise _fail(label, "file not found; check the path and the working folder") from None
@@ -426,6 +440,9 @@ def read_input_bytes(file: Path, label: str, *, what: str = "a CSV, TSV or Parqu
     except PermissionError:
         raise _fail(label, "permission denied; check that you may read the file") from None
     except OSError as err:
+        if err.errno == errno.ELOOP:
+            raise _fail(label, "a loop of symbolic links; give the path of the real "
+                               "file") from None
         raise _fail(label, f"cannot be read ({err.strerror or err}); check the path "
                            f"and the disk") from None
     if not raw and not allow_empty:
@@ -448,6 +465,12 @@ def _parse_parquet(raw: bytes, label: str) -> pd.DataFrame:
                            f"save it as CSV") from None
     if frame.shape[1] == 0:
         raise _fail(label, "the Parquet file has no columns; export the table again")
+    for name in frame.columns[frame.dtypes == object]:
+        nested = frame[name].map(lambda v: isinstance(v, (list, tuple, dict, np.ndarray)))
+        if nested.any():
+            raise _fail(label, f"column {name!r} holds lists or records (nested values), not "
+                               "one value per row; flatten it into columns or leave it out "
+                               "when exporting")
     return frame
 
 

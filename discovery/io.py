@@ -347,7 +347,8 @@ def read_edge_list(path) -> nx.DiGraph:
                            "arrow")
     header = text.splitlines()[0]
     delimiter = max([",", ";", "\t"], key=header.count)
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    # strict: an unterminated quote is an error, not a name that swallows the following rows
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
     try:
         columns = [c.strip().lower() for c in next(reader)]
     except csv.Error as err:
@@ -371,6 +372,9 @@ def read_edge_list(path) -> nx.DiGraph:
                 continue
             cells = row + [""] * (len(columns) - len(row))
             a, b = cells[i_from].strip(), cells[i_to].strip()
+            if any(ch in a + b for ch in "\r\n"):
+                raise _fail(label, f"{line}: a name runs over a line end (a quote is not "
+                                   "closed); close the quote or remove it")
             if not a:
                 raise _fail(label, f"{line}: the 'from' cell is empty; every row needs a "
                                    "'from' variable")
