@@ -490,6 +490,8 @@ def _from_dict(doc, source) -> SearchResult:
                 fail(f"edge {e['from']!r} — {e['to']!r} names an unknown variable")
             if e["kind"] not in EDGE_KINDS:
                 fail(f"edge kind {e['kind']!r} is not one of {EDGE_KINDS}")
+            if not all(isinstance(e.get(k, ""), str) for k in ("reason", "reason_kind")):
+                fail(f"edge {e['from']!r} — {e['to']!r}: 'reason' must be text")
             edges.append(Edge(e["from"], e["to"], e["kind"], e.get("reason", ""),
                               e.get("reason_kind", ""), _float(e.get("max_pvalue")),
                               int(e.get("tests", 0)), bool(e.get("locked", False))))
@@ -501,24 +503,63 @@ def _from_dict(doc, source) -> SearchResult:
             if r["a"] not in known or r["b"] not in known:
                 fail(f"removed pair {r['a']!r} — {r['b']!r} names an unknown variable")
             sep = r.get("separating_set")
+            if sep is not None and not (isinstance(sep, list) and set(sep) <= known):
+                fail(f"removed pair {r['a']!r} — {r['b']!r}: the separating set must be a "
+                     "list of known variables or null")
             if r.get("by", "test") not in ("test", "knowledge"):
                 fail(f"removal reason {r.get('by')!r} is not 'test' or 'knowledge'")
             removed.append(Removal(r["a"], r["b"], None if sep is None else tuple(sep),
                                    _float(r.get("pvalue")), r.get("by", "test"),
                                    bool(r.get("forbidden", False))))
-        tests = TestLog.from_rows((x, y, tuple(s), _float(p))
-                                  for x, y, s, p in doc["evidence"]["tests"])
+        rows = doc["evidence"]["tests"]
+        if not isinstance(rows, list) or not all(
+                isinstance(row, list) and len(row) == 4 and {row[0], row[1]} <= known
+                and isinstance(row[2], list) and set(row[2]) <= known for row in rows):
+            fail("'evidence.tests' must be rows [x, y, [given...], p-value] of known "
+                 "variables")
+        tests = TestLog.from_rows((x, y, tuple(s), _float(p)) for x, y, s, p in rows)
+        extras = _checked_extras(doc, known, fail)
+        return SearchResult(
+            variables=tuple(variables), settings=settings, knowledge=knowledge,
+            edges=tuple(edges), removed=tuple(removed), tests=tests, **extras)
     except ResultFormatError:
         raise
-    except (KeyError, TypeError, ValueError) as err:
+    except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
         fail(f"malformed content ({type(err).__name__}: {err})")
-    return SearchResult(
-        variables=tuple(variables), settings=settings, knowledge=knowledge,
-        edges=tuple(edges), removed=tuple(removed), tests=tests,
-        triples=tuple(doc.get("triples", ())), conflicts=tuple(doc.get("conflicts", ())),
-        notes=tuple(doc.get("notes", ())), counts=doc.get("counts", {}),
-        timings=doc.get("timings", {}), data=doc.get("data", {}),
-        software=doc.get("software", {}), seed=doc.get("seed"))
+
+
+def _checked_extras(doc: dict, known: set, fail) -> dict:
+    """The optional fields of a result document, each checked for its shape."""
+    def listed(key, check, what):
+        value = doc.get(key, [])
+        if not isinstance(value, list) or not all(check(v) for v in value):
+            fail(f"'{key}' must be a list of {what}")
+        return tuple(value)
+
+    def table(key, check=lambda v: True):
+        value = doc.get(key, {})
+        if not isinstance(value, dict) or not all(check(v) for v in value.values()):
+            fail(f"'{key}' must be a table of values")
+        return value
+
+    def is_triple(t):
+        return (isinstance(t, dict) and all(isinstance(t.get(k), str) for k in
+                                            ("x", "y", "z", "decision"))
+                and {t["x"], t["y"], t["z"]} <= known
+                and isinstance(t.get("reason", ""), str))
+
+    seed = doc.get("seed")
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, int)):
+        fail("'seed' must be a whole number or null")
+    return {"triples": listed("triples", is_triple, "triples {x, z, y, decision, reason} "
+                                                    "of known variables"),
+            "conflicts": listed("conflicts", lambda v: isinstance(v, str), "texts"),
+            "notes": listed("notes", lambda v: isinstance(v, str), "texts"),
+            "counts": table("counts"),
+            "timings": table("timings", lambda v: isinstance(v, (int, float))
+                             and not isinstance(v, bool)),
+            "data": table("data"), "software": table("software", lambda v: isinstance(v, str)),
+            "seed": seed}
 
 
 def _float(x) -> float:

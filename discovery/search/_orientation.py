@@ -167,10 +167,19 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
         elif decision == "ambiguous":
             ambiguous.add((x, z, y))
         out.triples.append((x, z, y, decision, reason))
-    for (u, z), reason in proposed.items():
-        if (u, z) not in knowledge_heads:
-            out.heads.add((u, z))
-            out.reasons[(u, z)] = reason
+    for (u, z), reason in sorted(proposed.items(), key=lambda kv: (key(kv[0][0]),
+                                                                    key(kv[0][1]))):
+        if (u, z) in knowledge_heads:
+            continue
+        cycle = _directed_path(out.heads, z, u) if (z, u) not in out.heads else None
+        if cycle:
+            out.conflicts.append(
+                f"collider arrowhead {names[u]} → {names[z]} refused: it would close the "
+                f"directed cycle {' → '.join(names[v] for v in cycle + [z])}; the data's "
+                "orientations are inconsistent here")
+            continue
+        out.heads.add((u, z))
+        out.reasons[(u, z)] = reason
     for u, v in sorted(out.heads, key=lambda e: (key(e[0]), key(e[1]))):
         if (v, u) in out.heads and key(u) < key(v):
             out.conflicts.append(f"{names[u]} — {names[v]}: colliders put arrowheads at both "
@@ -180,6 +189,31 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     _apply_meek_rules(adjacent, out, ambiguous, names, key,
                       why_forbidden if check_knowledge else None)
     return out
+
+
+def _directed_path(heads, start, goal) -> list[int] | None:
+    """A directed path ``start → … → goal`` along arrows that are not contested (both heads
+    present), as the list of its nodes, or None."""
+    children: dict[int, list[int]] = {}
+    for u, v in heads:
+        if (v, u) not in heads:
+            children.setdefault(u, []).append(v)
+    before = {start: None}
+    frontier = [start]
+    while frontier:
+        nxt = []
+        for u in frontier:
+            for v in children.get(u, ()):
+                if v not in before:
+                    before[v] = u
+                    if v == goal:
+                        path = [v]
+                        while before[path[-1]] is not None:
+                            path.append(before[path[-1]])
+                        return path[::-1]
+                    nxt.append(v)
+        frontier = nxt
+    return None
 
 
 def _knowledge_reason(why, a, b, names):
@@ -265,8 +299,10 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
         return None
 
     open_pairs = [(a, b) for a in range(len(adjacent)) for b in adjacent[a] if undirected(a, b)]
+    refused: set[tuple[int, int]] = set()
     while True:
-        open_pairs = [(a, b) for a, b in open_pairs if undirected(a, b)]
+        open_pairs = [(a, b) for a, b in open_pairs if undirected(a, b)
+                      and (a, b) not in refused]
         found = {}
         for a, b in open_pairs:
             reason = why_arrow(a, b)
@@ -285,6 +321,16 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
                 heads.add((a, b))
                 out.reasons[(a, b)] = ("contested", reason[1])
                 progressed = True
+                continue
+            cycle = _directed_path(heads, b, a)
+            if cycle:
+                # finite-sample errors can make the rules contradict acyclicity (a chordless
+                # cycle in the skeleton, say); never draw a directed cycle: leave it open
+                refused.add((a, b))
+                out.conflicts.append(
+                    f"{names[a]} — {names[b]}: {reason[0]} would orient it {names[a]} → "
+                    f"{names[b]}, closing the directed cycle "
+                    f"{' → '.join(names[v] for v in [a] + cycle)}; left undirected")
                 continue
             heads.add((a, b))
             out.reasons[(a, b)] = reason
