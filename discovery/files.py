@@ -3,8 +3,8 @@
 Every file Edgewise writes goes through :func:`atomic_write` (or :func:`write_text_atomic` /
 :func:`write_bytes_atomic`): the content goes to a temporary file in the same folder, is
 flushed and synced to disk, and only then renamed over the destination. A writer that is
-killed half-way leaves the previous file intact (and at most a hidden temporary file, which the
-next write of the same path cleans up); it never leaves a truncated result where a good one was.
+killed half-way leaves the previous file intact (and at most a hidden temporary file named
+``.NAME.*.tmp.SUFFIX`` beside it); it never leaves a truncated result where a good one was.
 
 Reading is guarded the same way: :func:`read_text_checked` refuses what is not a regular file
 (a device such as ``/dev/zero``, a folder, a symbolic-link loop) and files over a size limit
