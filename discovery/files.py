@@ -48,6 +48,15 @@ def _temporary_beside(path: Path) -> Path:
     fd, name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=f".tmp{path.suffix}",
                                 dir=path.parent)
     os.close(fd)
+    # mkstemp makes the file private (0600); give it the mode a plain open() would (or the
+    # mode of the file it replaces), so a shared report stays readable by others
+    try:
+        mode = stat.S_IMODE(os.stat(path).st_mode)
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        mode = 0o666 & ~umask
+    os.chmod(name, mode)
     return Path(name)
 
 

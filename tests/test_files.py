@@ -43,3 +43,17 @@ def test_same_file_sees_through_relative_paths_and_hard_links(tmp_path):
     assert same_file(original, tmp_path / "sub" / ".." / "data.csv")
     assert same_file(original, link)
     assert not same_file(original, tmp_path / "other.csv")
+
+
+def test_a_written_file_gets_the_usual_mode_not_a_private_one(tmp_path):
+    # a file written with open() gets 0o666 less the umask (POSIX); a report meant for
+    # colleagues must not come out readable by its owner only
+    umask = os.umask(0o022)
+    try:
+        write_text_atomic(tmp_path / "r.html", "<p>report</p>")
+        assert (tmp_path / "r.html").stat().st_mode & 0o777 == 0o644
+        os.chmod(tmp_path / "r.html", 0o640)
+        write_text_atomic(tmp_path / "r.html", "<p>again</p>")  # keeps the file's own mode
+        assert (tmp_path / "r.html").stat().st_mode & 0o777 == 0o640
+    finally:
+        os.umask(umask)
