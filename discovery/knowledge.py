@@ -256,6 +256,8 @@ def read_knowledge(path) -> Knowledge:
     except (json.JSONDecodeError, tomllib.TOMLDecodeError) as err:
         raise KnowledgeError(f"{path}: not valid {kind} ({err}); see docs/knowledge.md for "
                              "the format") from None
+    if kind == "JSON" and isinstance(values, dict) and values.get("format") == "edgewise-result":
+        values = values.get("knowledge", {})  # a result file: reuse the knowledge it ran with
     return Knowledge.from_dict(values, source=str(path))
 
 
