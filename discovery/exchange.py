@@ -135,7 +135,8 @@ def diagram_result(variables, edges, *, source: str = "diagram") -> SearchResult
                                 "remove that edge")
         pair = frozenset((a, b))
         if pair in seen:
-            raise _fail(source, f"the pair {a!r} — {b!r} has two edges; keep one")
+            x, y = sorted((a, b))
+            raise _fail(source, f"the pair {x!r} — {y!r} has two edges; keep one")
         seen.add(pair)
         out.append(Edge(a, b, kind, reason="drawn in the diagram" if kind != "undirected"
                         else "", reason_kind="diagram" if kind != "undirected" else ""))
@@ -236,11 +237,18 @@ def read_dot(path) -> SearchResult:
     node_labels: dict[str, str] = {}
     walk(graph)
     out = []
+    plain = {}  # two opposite plain arcs are one undirected edge (networkx's convention)
     for a, b, attrs in edges:
         a, b = node_labels.get(a, a), node_labels.get(b, b)
         for v in (a, b):
             if v not in names:
                 names.append(v)
+        if directed and not set(attrs) & {"kind", "from_mark", "to_mark", "dir", "arrowhead",
+                                          "arrowtail"}:
+            if (b, a) in plain:
+                out[plain.pop((b, a))] = _edge(a, b, ("tail", "tail"), None, label)
+                continue
+            plain[(a, b)] = len(out)
         marks = (attrs.get("from_mark"), attrs.get("to_mark"))
         if None in marks:
             marks = _dot_edge_marks(attrs, directed)

@@ -205,6 +205,15 @@ class Knowledge:
                                  f"{sorted(known)[:12]}{' ...' if len(known) > 12 else ''}; "
                                  "fix the names or drop those entries")
 
+    @classmethod
+    def from_diagram(cls, diagram, *, directions: bool = True,
+                     forbid_absent: bool = False) -> "Knowledge":
+        """Knowledge that locks the edges of a diagram (a result, a networkx DiGraph or a
+        .json/.dot/.graphml/.csv file); see :func:`discovery.exchange.knowledge_from_diagram`."""
+        from .exchange import knowledge_from_diagram
+        return knowledge_from_diagram(diagram, directions=directions,
+                                      forbid_absent=forbid_absent)
+
     # -- serialisation ------------------------------------------------------------------------
     def to_dict(self) -> dict:
         out = {f: [list(p) for p in getattr(self, f)] for f in _PAIR_FIELDS}

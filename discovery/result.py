@@ -296,6 +296,31 @@ class PairEvidence:
             lines.append(f"  test given {_set_text(t.given)}: p = {t.pvalue:.4g}")
         return "\n".join(lines)
 
+    def _repr_html_(self) -> str:
+        """The evidence as an HTML table, for notebooks."""
+        from html import escape
+        head = escape(f"{self.a} — {self.b}: "
+                      + (self.edge.arrow() if self.edge else "not adjacent"))
+        parts = [f"<p><strong>{head}</strong></p>"]
+        if self.edge and self.edge.reason:
+            parts.append(f"<p>orientation: {escape(self.edge.reason)}</p>")
+        if self.removal:
+            if self.removal.by == "test":
+                parts.append(f"<p>removed: independent given "
+                             f"{escape(_set_text(self.removal.separating_set))} "
+                             f"(p = {self.removal.pvalue:.3g})</p>")
+            else:
+                parts.append("<p>removed: forbidden by knowledge (the data gave no "
+                             "separating set)</p>")
+        rows = "".join(f"<tr><td>{escape(_set_text(t.given))}</td><td>{t.pvalue:.4g}</td></tr>"
+                       for t in self.tests)
+        if rows:
+            parts.append(f"<table><tr><th>given</th><th>p-value</th></tr>{rows}</table>")
+        return "".join(parts)
+
+    def __str__(self) -> str:
+        return self.as_text()
+
 
 def _set_text(s) -> str:
     return "{" + ", ".join(s) + "}" if s is not None else "none"
@@ -401,6 +426,23 @@ class SearchResult:
                 g.add_edge(e.target, e.source, **attrs)
         return g
 
+    def _repr_svg_(self) -> str:
+        """The diagram as SVG text, for notebooks."""
+        import io
+
+        import matplotlib
+
+        from .drawing import draw_result
+        buffer = io.StringIO()
+        with matplotlib.rc_context({"svg.fonttype": "none"}):
+            draw_result(self).savefig(buffer, format="svg")
+        text = buffer.getvalue()
+        return text[text.find("<svg"):]
+
+    def _repr_html_(self) -> str:
+        """The diagram followed by the summary table and the cautions, for notebooks."""
+        return f"<div>{self._repr_svg_()}</div>{self.summary().as_html()}"
+
     def summary(self) -> "Summary":
         """A readable summary (``as_text()``, ``as_html()``, ``to_dict()``)."""
         return Summary(self)
@@ -426,7 +468,8 @@ class SearchResult:
             "triples": [dict(t) for t in self.triples],
             "conflicts": list(self.conflicts),
             "notes": list(self.notes),
-            "evidence": {"tests": [[x, y, list(s), _num(p)] for x, y, s, p in self.tests]},
+            "evidence": {"tests": [{"x": x, "y": y, "given": list(s), "pvalue": _num(p)}
+                                   for x, y, s, p in self.tests]},
             "counts": dict(self.counts),
             "timings": dict(self.timings),
             "data": dict(self.data),
@@ -509,8 +552,7 @@ def _from_dict(doc, source) -> SearchResult:
             removed.append(Removal(r["a"], r["b"], None if sep is None else tuple(sep),
                                    _float(r.get("pvalue")), r.get("by", "test"),
                                    bool(r.get("forbidden", False))))
-        tests = TestLog.from_rows((x, y, tuple(s), _float(p))
-                                  for x, y, s, p in doc["evidence"]["tests"])
+        tests = TestLog.from_rows(_test_row(t) for t in doc["evidence"]["tests"])
     except ResultFormatError:
         raise
     except (KeyError, TypeError, ValueError) as err:
@@ -522,6 +564,15 @@ def _from_dict(doc, source) -> SearchResult:
         notes=tuple(doc.get("notes", ())), counts=doc.get("counts", {}),
         timings=doc.get("timings", {}), data=doc.get("data", {}),
         software=doc.get("software", {}), seed=doc.get("seed"))
+
+
+def _test_row(t) -> tuple:
+    """One evidence row: ``{"x", "y", "given", "pvalue"}``, or the older bare list
+    ``[x, y, given, pvalue]`` of files written before the rows carried keys."""
+    if isinstance(t, dict):
+        return t["x"], t["y"], tuple(t["given"]), _float(t["pvalue"])
+    x, y, given, p = t
+    return x, y, tuple(given), _float(p)
 
 
 def _float(x) -> float:
