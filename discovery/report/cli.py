@@ -22,8 +22,7 @@ def register(sub) -> None:
                     "reproduces the search. RESULT is a result JSON, or a diagram drawn "
                     "elsewhere (.dot, .graphml, .csv).",
         epilog="example:\n  edgewise report out/greenhouse.json --out out/greenhouse.html\n"
-               "  edgewise report out/greenhouse.json --sweep out/sweep.json "
-               "--out out/greenhouse.pdf")
+               "  edgewise report out/greenhouse.json --out out/greenhouse.pdf")
     r.add_argument("result", metavar="RESULT", help="result JSON (or a .dot/.graphml/.csv "
                                                     "diagram)")
     r.add_argument("--sweep", metavar="FILE.json", help="survival sweep JSON to include")
