@@ -30,7 +30,8 @@ def test_cli_reference_matches_the_parsers():
 
 def commands(path: Path) -> list[str]:
     """The ``edgewise ...`` lines of the fenced blocks (not ```text blocks), with ``\\``
-    continuations joined and trailing ``# comments`` removed."""
+    continuations joined. A trailing ``# refused: ...`` comment marks a command that must
+    fail with one clear line (exit status 2)."""
     out, fence, pending = [], None, ""
     for line in path.read_text(encoding="utf-8").splitlines():
         stripped = line.strip()
@@ -71,4 +72,8 @@ def test_every_documented_command_runs(document, tmp_path, monkeypatch, capsys):
         words = shlex.split(command, comments=True)
         status = main(words[1:])
         err = capsys.readouterr().err
-        assert status == 0, f"{document.name}: '{command}' exited {status}: {err}"
+        # a command documented as refused ("# refused: ...") must fail with one clear line
+        want = 2 if re.search(r"#.*\brefused\b", command) else 0
+        assert status == want, f"{document.name}: '{command}' exited {status}: {err}"
+        if want:
+            assert err.count("\n") == 1 and "error:" in err
