@@ -460,20 +460,20 @@ def _as_result(diagram, name) -> SearchResult:
 
 # -------------------------------------------------------------------------------- compare
 
+_MARK_TEXT = {("tail", "arrow"): "→", ("arrow", "tail"): "←", ("tail", "tail"): "—",
+              ("arrow", "arrow"): "↔", ("circle", "arrow"): "o→", ("arrow", "circle"): "←o",
+              ("circle", "circle"): "o–o", ("circle", "tail"): "o–", ("tail", "circle"): "–o"}
+
+
 def _mark_text(e: Edge | None, a: str, b: str) -> str:
-    """The edge between a and b written from a's side: ``a → b``, ``a ← b``, ``a — b``..."""
+    """The edge between a and b written from a's side: ``a → b``, ``a ← b``, ``a — b``,
+    ``a ?– b (contested)``, ``a o→ b``..."""
     if e is None:
         return "no edge"
     if e.kind == "contested":
         return f"{a} ?– {b} (contested)"
-    first, second = (e.from_mark, e.to_mark) if e.source == a else (e.to_mark, e.from_mark)
-    left = {"tail": "", "arrow": "←", "circle": "o"}[first]
-    right = {"tail": "", "arrow": "→", "circle": "o"}[second]
-    middle = "—" if not (left or right) else ("-" if left == "o" or right == "o" else "")
-    body = (left + middle + right) or "—"
-    if left == "←" and right == "→":
-        body = "↔"
-    return f"{a} {body} {b}"
+    marks = (e.from_mark, e.to_mark) if e.source == a else (e.to_mark, e.from_mark)
+    return f"{a} {_MARK_TEXT.get(marks, '—')} {b}"
 
 
 def _marks_between(e: Edge | None, a: str, b: str):

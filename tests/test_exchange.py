@@ -22,8 +22,8 @@ import pytest
 
 from discovery import DataValidationError, DiscoveryError, DSeparationOracle, Knowledge, discover
 from discovery.cli import main
-from discovery.exchange import (compare, knowledge_from_diagram, read_diagram, spreadsheet_safe,
-                                write_edge_csv)
+from discovery.exchange import (compare, diagram_result, knowledge_from_diagram,
+                                merge_knowledge, read_diagram, spreadsheet_safe, write_edge_csv)
 from discovery.io import write_dot, write_graphml
 
 pytestmark = pytest.mark.filterwarnings("ignore:.*deprecated")  # pydot's use of pyparsing
@@ -196,9 +196,20 @@ def test_bad_inputs_to_compare_and_lock(tmp_path, capsys):
     with pytest.raises(DataValidationError, match="file not found"):
         read_diagram(tmp_path / "missing.csv")
     (tmp_path / "cyc.csv").write_text("from,to\na,b\nb,c\nc,a\n", encoding="utf-8")
-    from discovery import KnowledgeError
-    with pytest.raises(KnowledgeError):
+    from discovery import KnowledgeError, ResultFormatError
+    with pytest.raises(KnowledgeError, match="cycle"):
         knowledge_from_diagram(tmp_path / "cyc.csv")
+    with pytest.raises(KnowledgeError, match="both locked and forbidden"):
+        merge_knowledge(Knowledge(locked=[("a", "b")]), Knowledge(forbidden=[("a", "b")]))
+    (tmp_path / "other.json").write_text('{"format": "something-else"}', encoding="utf-8")
+    with pytest.raises(ResultFormatError, match="'format' is not 'edgewise-result'"):
+        read_diagram(tmp_path / "other.json")
+    with pytest.raises(DataValidationError, match="names a variable that is not in the diagram"):
+        diagram_result(["a"], [("a", "b", "directed")])
+    (tmp_path / "a file").write_text("", encoding="utf-8")
+    r = discover(None, test=DSeparationOracle(nx.DiGraph([("a", "b")])))
+    with pytest.raises(DiscoveryError, match="cannot write the edge list"):
+        write_edge_csv(r, tmp_path / "a file" / "e.csv")
     shutil.copy(GREENHOUSE / "truth.csv", tmp_path / "t.csv")
     assert main(["compare", str(tmp_path / "t.csv"), str(tmp_path / "nope.dot")]) == 2
     assert "nope.dot: file not found" in capsys.readouterr().err
