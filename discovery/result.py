@@ -266,9 +266,10 @@ class Removal(NamedTuple):
                 "pvalue": _num(self.pvalue), "by": self.by, "forbidden": self.forbidden}
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class PairEvidence:
-    """Everything the search knows about one pair."""
+    """Everything the search knows about one pair (prints as :meth:`as_text`; a notebook
+    shows it as a table)."""
 
     a: str
     b: str
@@ -320,6 +321,8 @@ class PairEvidence:
 
     def __str__(self) -> str:
         return self.as_text()
+
+    __repr__ = __str__
 
 
 def _set_text(s) -> str:
@@ -653,5 +656,7 @@ class Summary:
 
     def __str__(self) -> str:
         return self.as_text()
+
+    __repr__ = __str__
 
     _repr_html_ = as_html

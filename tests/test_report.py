@@ -202,7 +202,9 @@ def test_notebook_reprs_and_keyed_evidence_rows(tmp_path):
     ev = r.evidence("a", "b")
     page = parse(ev._repr_html_())
     assert "removed: independent given {}" in " ".join(page.text)
-    assert str(ev) == ev.as_text()
+    assert str(ev) == repr(ev) == ev.as_text()  # readable in a console too
+    assert repr(r.summary()) == r.summary().as_text()
+    parse(r.summary()._repr_html_())
     doc = r.to_dict()
     rows = doc["evidence"]["tests"]
     assert rows and set(rows[0]) == {"x", "y", "given", "pvalue"}
