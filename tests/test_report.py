@@ -129,6 +129,7 @@ def test_report_command_writes_a_self_contained_html(files, tmp_path, monkeypatc
     for removal in r.removed:  # every removed pair with its separating set
         assert f"{removal.a} — {removal.b}" in text
     assert r.data["sha256"] in text and "fungal_spots" in text
+    assert "Unshielded triples" in text and "non-collider" in text
 
     # the reproduce command, run again, gives the same edges
     command = shlex.split(page.ids["reproduce"])

@@ -130,7 +130,7 @@ def _svg_uri(fig) -> str:
     import matplotlib
     buffer = io.BytesIO()
     with matplotlib.rc_context({"svg.fonttype": "path", "svg.hashsalt": "edgewise"}):
-        fig.savefig(buffer, format="svg", facecolor=fig.get_facecolor())
+        fig.savefig(buffer, format="svg", facecolor=fig.get_facecolor(), bbox_inches="tight")
     return "data:image/svg+xml;base64," + base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
@@ -151,7 +151,7 @@ def survival_figure(sweep: dict):
     edges = [e for e in sweep["edges"] if any(e.get("present", []))]
     edges.sort(key=lambda e: (-sum(bool(p) for p in e.get("present", [])), e["a"], e["b"]))
     rungs = max([len(e.get("present", [])) for e in edges] + [len(ladder or [])] + [1])
-    fig = _new_figure(min(2.5 + 0.45 * rungs, 11), 1.2 + 0.26 * max(len(edges), 1))
+    fig = _new_figure(min(4.5 + 0.45 * rungs, 11), 1.2 + 0.26 * max(len(edges), 1))
     ax = fig.add_axes((0.32, 1.0 / (1.2 + 0.26 * max(len(edges), 1)) * 0.85, 0.64,
                        0.26 * max(len(edges), 1) / (1.2 + 0.26 * max(len(edges), 1))))
     for row, e in enumerate(edges):
@@ -170,8 +170,7 @@ def survival_figure(sweep: dict):
     ax.set_xticklabels([f"{v:g}" for v in (ladder or range(1, rungs + 1))], fontsize=7,
                        rotation=45)
     ax.set_xlabel("significance level α" if parameter == "alpha" else "margin δ", fontsize=8)
-    ax.set_title("Survival: where each edge is present (red: contested)", fontsize=9,
-                 loc="left")
+    ax.set_title("Where each edge is present (red: contested)", fontsize=9, loc="left")
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
     return fig
@@ -389,6 +388,10 @@ def _html(report: Report) -> str:
         out += ["<h2>Removed pairs</h2>",
                 "<p>Each pair without an edge, the conditioning set that made it independent "
                 "(its separating set) and the p-value of that test.</p>", _removed_html(r)]
+    if len(r.triples):
+        out += ["<h2>Unshielded triples</h2>",
+                "<p>Each pair of non-adjacent variables with a common neighbour, and whether "
+                "the search read the neighbour as a collider.</p>", _triples_html(r)]
     notes = list(r.conflicts) + list(r.notes)
     if notes:
         out += ["<h2>Notes and conflicts</h2>",
@@ -463,6 +466,13 @@ def _removed_html(r) -> str:
     if not rows:
         return "<p>No pair was removed.</p>"
     return _table(["pair", "separating set", "p-value", "removed by"], rows)
+
+
+def _triples_html(r) -> str:
+    rows = [[_e(f"{t['x']} — {t['z']} — {t['y']}"), _e(t.get("decision", "")),
+             _e(t.get("reason", ""))] for t in r.triples]
+    return (f"<details><summary>{len(rows)} triple(s)</summary>"
+            + _table(["triple", "decision", "why"], rows) + "</details>")
 
 
 def _sweep_html(sweep) -> str:
@@ -595,6 +605,7 @@ def _write_pdf(report: Report, path) -> None:
         figures.append(support_figure(report.support))
     if report.controls is not None and (report.controls.get("effects") or {}).get("effects"):
         figures.append(effects_figure(report.controls))
+    charts = len(figures)
     wrapped = []
     for line in _text_lines(report):
         indent = len(line) - len(line.lstrip())
@@ -608,5 +619,5 @@ def _write_pdf(report: Report, path) -> None:
     with matplotlib.rc_context({"pdf.fonttype": 42}):
         with PdfPages(path, metadata={"Title": "Edgewise report",
                                       "Creator": "Edgewise"}) as pdf:
-            for fig in figures:
-                pdf.savefig(fig)
+            for i, fig in enumerate(figures):
+                pdf.savefig(fig, bbox_inches="tight" if i < charts else None)
