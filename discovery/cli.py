@@ -243,7 +243,7 @@ def _cmd_discover(args) -> int:
         knowledge.check_variables(dataset.variables, source=args.knowledge)
     from .cli_exchange import discover_knowledge, print_truth_scores, read_truth
     knowledge = discover_knowledge(args, knowledge, dataset.variables)
-    truth = read_truth(args)
+    truth = read_truth(args, dataset.variables)
     progress = _Progress()
     with make_executor(args.jobs) as executor:
         try:

@@ -73,22 +73,23 @@ def discover_knowledge(args, knowledge, variables):
         raise DiscoveryError(f"--lock-diagram {args.lock_diagram}: {err}") from None
 
 
-def read_truth(args):
-    """The ``--truth`` diagram, read before the search so a bad file fails fast."""
+def read_truth(args, variables):
+    """The ``--truth`` diagram, read and checked before the search so a bad file fails fast."""
     if not getattr(args, "truth", None):
         return None
     from .exchange import read_diagram
-    return read_diagram(args.truth)
+    truth = read_diagram(args.truth)
+    unknown = sorted(set(variables) - set(truth.variables))
+    if unknown:
+        raise DiscoveryError(f"--truth {args.truth}: the diagram lacks variable(s) "
+                             f"{unknown[:5]}; score against a diagram over the same variables")
+    return truth
 
 
 def print_truth_scores(result, truth, path) -> None:
     """Scores against the true diagram and against its equivalence class."""
     from .exchange import compare, diagram_result
     from .metrics import cpdag_of
-    unknown = sorted(set(result.variables) - set(truth.variables))
-    if unknown:
-        raise DiscoveryError(f"--truth {path}: the diagram lacks variable(s) {unknown[:5]}; "
-                             "score against a diagram over the same variables")
     lines = [f"Scores against --truth {path}:"]
     targets = [("the diagram as given", truth)]
     if all(e.kind == "directed" for e in truth.edges):

@@ -217,3 +217,6 @@ def test_bad_inputs_to_compare_and_lock(tmp_path, capsys):
     assert main(["discover", str(GREENHOUSE / "data.csv"), "--lock-diagram",
                  str(tmp_path / "other.csv"), "--quiet"]) == 2
     assert "unknown variable(s) ['bar', 'foo']" in capsys.readouterr().err
+    assert main(["discover", str(GREENHOUSE / "data.csv"), "--truth",
+                 str(tmp_path / "other.csv"), "--quiet"]) == 2
+    assert "the diagram lacks variable(s) ['air_temp'" in capsys.readouterr().err
