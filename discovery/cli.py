@@ -79,6 +79,8 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--figure", metavar="FILE",
                    help="draw the diagram to a PNG, SVG or PDF file")
     d.add_argument("--quiet", action="store_true", help="no summary on stdout")
+    from . import cli_exchange
+    cli_exchange.add_discover_options(d)
 
     s = sub.add_parser(
         "simulate", help="write linear-Gaussian data from a random or given diagram",
@@ -115,6 +117,10 @@ def _build_parser() -> argparse.ArgumentParser:
                     ".edgewise session.",
         epilog="example:\n  edgewise gui example_sets/greenhouse/data.csv")
     g.add_argument("path", nargs="?", help="data file or .edgewise session to open")
+    from . import cli_exchange
+    from .report import cli as report_cli
+    cli_exchange.register(sub)
+    report_cli.register(sub)
     return parser
 
 
@@ -130,7 +136,7 @@ def main(argv=None) -> int:
     if args.command is None:
         parser.print_help()
         return 2
-    handler = {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
+    handler = getattr(args, "handler", None) or {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
                "gui": _cmd_gui}[args.command]
     try:
         with warnings.catch_warnings():
@@ -256,14 +262,18 @@ def _cmd_discover(args) -> int:
         "--dot": _output_path(args.dot, "--dot", [".dot", ".gv"]),
         "--graphml": _output_path(args.graphml, "--graphml", [".graphml"]),
         "--figure": _output_path(args.figure, "--figure", [".png", ".svg", ".pdf"]),
+        "--edges": _output_path(args.edges, "--edges", [".csv"]),
     }
-    _guard_outputs(outputs, [args.data, args.knowledge])
+    _guard_outputs(outputs, [args.data, args.knowledge, args.lock_diagram, args.truth])
     columns = [c.strip() for c in args.columns.split(",") if c.strip()] if args.columns \
         else None
     dataset = read_table(args.data, columns=columns, missing=args.missing)
     knowledge = read_knowledge(args.knowledge) if args.knowledge else None
     if knowledge is not None:
         knowledge.check_variables(dataset.variables, source=args.knowledge)
+    from .cli_exchange import discover_knowledge, print_truth_scores, read_truth
+    knowledge = discover_knowledge(args, knowledge, dataset.variables)
+    truth = read_truth(args, dataset.variables)
     progress = _Progress()
     with make_executor(args.jobs) as executor:
         try:
@@ -274,13 +284,17 @@ def _cmd_discover(args) -> int:
         finally:
             progress.close()
     from .drawing import draw_result
+    from .exchange import write_edge_csv
     from .io import write_dot, write_graphml
     _write_outputs([
         ("--out", outputs["--out"], result.to_json),
         ("--dot", outputs["--dot"], lambda p: write_dot(result, p)),
         ("--graphml", outputs["--graphml"], lambda p: write_graphml(result, p)),
         ("--figure", outputs["--figure"], lambda p: draw_result(result, p)),
+        ("--edges", outputs["--edges"], lambda p: write_edge_csv(result, p)),
     ])
+    if truth is not None:
+        print_truth_scores(result, truth, args.truth)
     if not args.quiet:
         print(result.summary().as_text(assumptions=False))
         written = [f"{opt} {p}" for opt, p in outputs.items() if p is not None]

@@ -87,8 +87,10 @@ def _dot_attrs(attrs: dict) -> str:
     for key, value in attrs.items():
         if isinstance(value, bool):
             value = "true" if value else "false"
-        elif isinstance(value, (int, float)):
-            value = repr(value) if isinstance(value, float) else str(value)
+        elif isinstance(value, float):  # quoted: DOT numerals have no exponent (9e-22)
+            value = _dot_id(repr(value))
+        elif isinstance(value, int):
+            value = str(value)
         else:
             value = _dot_id(str(value))
         out.append(f"{key}={value}")
@@ -161,6 +163,7 @@ def write_dot(result: SearchResult, path=None) -> str:
     for e in result.edges:
         attrs = dict(_DOT_STYLE[e.kind])
         attrs.update(kind=e.kind, reason=e.reason, reason_kind=e.reason_kind)
+        attrs.update(from_mark=e.from_mark, to_mark=e.to_mark)  # the ends, for any reader
         if not math.isnan(e.max_pvalue):
             attrs["max_pvalue"] = float(e.max_pvalue)
         attrs.update(tests=int(e.tests), locked=bool(e.locked),
@@ -185,6 +188,8 @@ _GRAPH_KEYS = [("g_format", "graph", "format", "string"),
                ("n_label", "node", "label", "string"),
                ("n_stage", "node", "stage", "int"),
                ("e_kind", "edge", "kind", "string"),
+               ("e_from_mark", "edge", "from_mark", "string"),
+               ("e_to_mark", "edge", "to_mark", "string"),
                ("e_reason", "edge", "reason", "string"),
                ("e_reason_kind", "edge", "reason_kind", "string"),
                ("e_max_pvalue", "edge", "max_pvalue", "double"),
@@ -260,6 +265,8 @@ def write_graphml(result: SearchResult, path=None) -> str:
         edge = ET.SubElement(graph, f"{{{_GRAPHML_NS}}}edge",
                              {"id": f"e{i}", "source": e.source, "target": e.target})
         data(edge, "e_kind", e.kind)
+        data(edge, "e_from_mark", e.from_mark)
+        data(edge, "e_to_mark", e.to_mark)
         data(edge, "e_reason", e.reason)
         data(edge, "e_reason_kind", e.reason_kind)
         data(edge, "e_max_pvalue", float(e.max_pvalue))

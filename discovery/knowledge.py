@@ -212,6 +212,15 @@ class Knowledge:
                                  f"{sorted(known)[:12]}{' ...' if len(known) > 12 else ''}; "
                                  "fix the names or drop those entries")
 
+    @classmethod
+    def from_diagram(cls, diagram, *, directions: bool = True,
+                     forbid_absent: bool = False) -> "Knowledge":
+        """Knowledge that locks the edges of a diagram (a result, a networkx DiGraph or a
+        .json/.dot/.graphml/.csv file); see :func:`discovery.exchange.knowledge_from_diagram`."""
+        from .exchange import knowledge_from_diagram
+        return knowledge_from_diagram(diagram, directions=directions,
+                                      forbid_absent=forbid_absent)
+
     # -- serialisation ------------------------------------------------------------------------
     def to_dict(self) -> dict:
         out = {f: [list(p) for p in getattr(self, f)] for f in _PAIR_FIELDS}
@@ -263,6 +272,8 @@ def read_knowledge(path) -> Knowledge:
         raise KnowledgeError(f"{err}{note}") from None
     if not isinstance(values, dict):
         raise KnowledgeError(f"{path}: the file must hold a table of keys{note}")
+    if values.get("format") == "edgewise-result":
+        values = values.get("knowledge", {})  # a result file: reuse the knowledge it ran with
     return Knowledge.from_dict(values, source=str(path))
 
 

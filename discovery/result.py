@@ -267,9 +267,10 @@ class Removal(NamedTuple):
                 "pvalue": _num(self.pvalue), "by": self.by, "forbidden": self.forbidden}
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class PairEvidence:
-    """Everything the search knows about one pair."""
+    """Everything the search knows about one pair (prints as :meth:`as_text`; a notebook
+    shows it as a table)."""
 
     a: str
     b: str
@@ -296,6 +297,33 @@ class PairEvidence:
         for t in self.tests:
             lines.append(f"  test given {_set_text(t.given)}: p = {t.pvalue:.4g}")
         return "\n".join(lines)
+
+    def _repr_html_(self) -> str:
+        """The evidence as an HTML table, for notebooks."""
+        from html import escape
+        head = escape(f"{self.a} — {self.b}: "
+                      + (self.edge.arrow() if self.edge else "not adjacent"))
+        parts = [f"<p><strong>{head}</strong></p>"]
+        if self.edge and self.edge.reason:
+            parts.append(f"<p>orientation: {escape(self.edge.reason)}</p>")
+        if self.removal:
+            if self.removal.by == "test":
+                parts.append(f"<p>removed: independent given "
+                             f"{escape(_set_text(self.removal.separating_set))} "
+                             f"(p = {self.removal.pvalue:.3g})</p>")
+            else:
+                parts.append("<p>removed: forbidden by knowledge (the data gave no "
+                             "separating set)</p>")
+        rows = "".join(f"<tr><td>{escape(_set_text(t.given))}</td><td>{t.pvalue:.4g}</td></tr>"
+                       for t in self.tests)
+        if rows:
+            parts.append(f"<table><tr><th>given</th><th>p-value</th></tr>{rows}</table>")
+        return "".join(parts)
+
+    def __str__(self) -> str:
+        return self.as_text()
+
+    __repr__ = __str__
 
 
 def _set_text(s) -> str:
@@ -402,6 +430,23 @@ class SearchResult:
                 g.add_edge(e.target, e.source, **attrs)
         return g
 
+    def _repr_svg_(self) -> str:
+        """The diagram as SVG text, for notebooks."""
+        import io
+
+        import matplotlib
+
+        from .drawing import draw_result
+        buffer = io.StringIO()
+        with matplotlib.rc_context({"svg.fonttype": "none"}):
+            draw_result(self).savefig(buffer, format="svg")
+        text = buffer.getvalue()
+        return text[text.find("<svg"):]
+
+    def _repr_html_(self) -> str:
+        """The diagram followed by the summary table and the cautions, for notebooks."""
+        return f"<div>{self._repr_svg_()}</div>{self.summary().as_html()}"
+
     def summary(self) -> "Summary":
         """A readable summary (``as_text()``, ``as_html()``, ``to_dict()``)."""
         return Summary(self)
@@ -427,7 +472,8 @@ class SearchResult:
             "triples": [dict(t) for t in self.triples],
             "conflicts": list(self.conflicts),
             "notes": list(self.notes),
-            "evidence": {"tests": [[x, y, list(s), _num(p)] for x, y, s, p in self.tests]},
+            "evidence": {"tests": [{"x": x, "y": y, "given": list(s), "pvalue": _num(p)}
+                                   for x, y, s, p in self.tests]},
             "counts": dict(self.counts),
             "timings": dict(self.timings),
             "data": dict(self.data),
@@ -512,12 +558,9 @@ def _from_dict(doc, source) -> SearchResult:
                                    _float(r.get("pvalue")), r.get("by", "test"),
                                    bool(r.get("forbidden", False))))
         rows = doc["evidence"]["tests"]
-        if not isinstance(rows, list) or not all(
-                isinstance(row, list) and len(row) == 4 and {row[0], row[1]} <= known
-                and isinstance(row[2], list) and set(row[2]) <= known for row in rows):
-            fail("'evidence.tests' must be rows [x, y, [given...], p-value] of known "
-                 "variables")
-        tests = TestLog.from_rows((x, y, tuple(s), _float(p)) for x, y, s, p in rows)
+        if not isinstance(rows, list):
+            fail("'evidence.tests' must be a list of test rows")
+        tests = TestLog.from_rows(_test_row(t, known, fail) for t in rows)
         extras = _checked_extras(doc, known, fail)
         return SearchResult(
             variables=tuple(variables), settings=settings, knowledge=knowledge,
@@ -560,6 +603,21 @@ def _checked_extras(doc: dict, known: set, fail) -> dict:
                              and not isinstance(v, bool)),
             "data": table("data"), "software": table("software", lambda v: isinstance(v, str)),
             "seed": seed}
+
+
+def _test_row(t, known, fail) -> tuple:
+    """One evidence row: ``{"x", "y", "given", "pvalue"}``, or the older bare list
+    ``[x, y, given, pvalue]`` of files written before the rows carried keys; its variables
+    must be known."""
+    if isinstance(t, dict):
+        x, y, given, p = t["x"], t["y"], t["given"], t["pvalue"]
+    elif isinstance(t, list) and len(t) == 4:
+        x, y, given, p = t
+    else:
+        fail("'evidence.tests' rows must be {x, y, given, pvalue}")
+    if not (isinstance(given, list) and {x, y} <= known and set(given) <= known):
+        fail("'evidence.tests' rows must name known variables, 'given' as a list")
+    return x, y, tuple(given), _float(p)
 
 
 def _float(x) -> float:
@@ -640,5 +698,7 @@ class Summary:
 
     def __str__(self) -> str:
         return self.as_text()
+
+    __repr__ = __str__
 
     _repr_html_ = as_html

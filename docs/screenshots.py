@@ -131,8 +131,17 @@ def main() -> int:
     pump(app)
     shot(dialog, "10-assumptions.png")
     dialog.close()
+    report_shots(app, w)
     w.close()
     return 0
+
+
+def report_shots(app, w):
+    """The export menu with its Report… entry (the window's way to `edgewise report`)."""
+    w.export_menu.popup(w.export_button.mapToGlobal(w.export_button.rect().bottomLeft()))
+    pump(app, 200)
+    shot(w.export_menu, "11-export-and-report-menu.png")
+    w.export_menu.close()
 
 
 if __name__ == "__main__":

@@ -167,6 +167,8 @@ class MainWindow(QMainWindow):
         self._update_title()
         self._rebuild_recent()
         self._restore_state()
+        from . import report_action
+        report_action.install(self)  # "Report…" in the export menu
 
     # ------------------------------------------------------------------------------ building
     def _action(self, name, text, slot, shortcut=None, tip=None, checkable=False):
