@@ -57,7 +57,7 @@ def _bad_inputs(tmp_path):
     dup = tmp_path / "dup.csv"
     dup.write_text("a,b,a\n1,2,3\n4,5,6\n")
     text = tmp_path / "text.csv"
-    text.write_text("a,b,c\n" + "".join(f"{i},{i % 3},x{i}\n" for i in range(20)))
+    text.write_text("a,b,c\n" + "".join(f"{i * i % 17},{i % 3},x{i % 4}\n" for i in range(20)))
     inf = tmp_path / "inf.csv"
     rows = "".join(f"{i},{(i * 7) % 5},{'inf' if i == 3 else i * 0.5}\n" for i in range(20))
     inf.write_text("a,b,c\n" + rows)
