@@ -351,7 +351,8 @@ def _fail(label: str, message: str) -> DataValidationError:
 # --------------------------------------------------------------------------- reading files
 
 def read_table(path, *, columns=None, exclude=None, missing: str = "drop", sep=None,
-               decimal: str = ".", thousands: str | None = None, na_values=None) -> Dataset:
+               decimal: str = ".", thousands: str | None = None, na_values=None,
+               include=None) -> Dataset:
     """Read a CSV, TSV or Parquet file into a :class:`Dataset`.
 
     The file is read once, as bytes: the fingerprint and the table come from the same bytes,
@@ -373,6 +374,9 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop", sep=N
         Columns to leave out.
     missing : {"drop", "test-wise"}
         The missing-value policy (see the module docstring).
+    include : str or sequence of str, optional
+        Columns to keep even though they look like an identifier, a date or free text (the
+        other columns stay as they are).
     sep : str, optional
         The separator, when detection is not wanted (``"\\t"`` may be written for tab).
     decimal : str
@@ -418,7 +422,7 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop", sep=N
                             thousands=thousands, na_values=na_values)
     dataset, warns = _prepare(frame, columns=columns, exclude=exclude, missing=missing,
                               source=label, label=label, sha256=digest,
-                              number_format=(decimal, thousands))
+                              number_format=(decimal, thousands), include=include)
     for message in warns:
         warnings.warn(message, DegenerateDataWarning, stacklevel=2)
     return dataset
@@ -625,17 +629,17 @@ def _frame_fingerprint(frame: pd.DataFrame) -> str:
 
 
 def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
-                  source: str | None = None) -> Dataset:
+                  source: str | None = None, include=None) -> Dataset:
     """Apply the reading rules to an in-memory table.
 
     Parameters
     ----------
     frame : pandas.DataFrame
         The table; it is not modified. Column names are turned into strings.
-    columns, exclude, missing
+    columns, exclude, missing, include
         As in :func:`read_table`. Columns that look like an identifier (text, or a run of
         consecutive whole numbers, with a different value in almost every row), dates/times or
-        free text are left out with a note, unless named in ``columns``. Yes/no, y/n,
+        free text are left out with a note, unless named in ``include`` or ``columns``. Yes/no, y/n,
         true/false and boolean columns are read as binary 1/0 with a note.
     source : str, optional
         Where the frame came from, used in messages and kept in :attr:`Dataset.source`
@@ -671,7 +675,7 @@ def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
         raise _fail(label, "the table has no rows")
     digest = _frame_fingerprint(frame)
     dataset, warns = _prepare(frame, columns=columns, exclude=exclude, missing=missing,
-                              source=source, label=label, sha256=digest)
+                              source=source, label=label, sha256=digest, include=include)
     for message in warns:
         warnings.warn(message, DegenerateDataWarning, stacklevel=2)
     return dataset
@@ -895,7 +899,8 @@ def _unsearchable(series: pd.Series) -> str | None:
 
 
 def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str | None,
-             label: str, sha256: str, number_format=(".", None)) -> tuple[Dataset, list[str]]:
+             label: str, sha256: str, number_format=(".", None),
+             include=None) -> tuple[Dataset, list[str]]:
     names = [str(c) for c in frame.columns]
     counted = Counter(names)
     duplicates = [n for n in counted if counted[n] > 1]
@@ -908,8 +913,10 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
 
     selected = _as_names(columns, "columns")
     dropped = _as_names(exclude, "exclude")
+    kept_anyway = _as_names(include, "include") or []
     _check_known(selected, "columns", names, label)
     _check_known(dropped, "exclude", names, label)
+    _check_known(kept_anyway, "include", names, label)
 
     for n in names:  # a number column read as text because of its number format
         if _texty(table[n]) and (selected is None or n in selected) and \
@@ -945,7 +952,7 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     warns: list[str] = []
     left_out: dict[str, list[str]] = {}
     for n in names:  # identifiers, dates and free text, unless named in `columns`
-        if n in excluded or (selected is not None and n in selected):
+        if n in excluded or (selected is not None and n in selected) or n in kept_anyway:
             continue
         why = _unsearchable(table[n])
         if why is not None:
@@ -958,8 +965,8 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
         notes.append(f"{_columns_word(group)} {_quote_list(group)} "
                      f"look{'s' if len(group) == 1 else ''} like {looks} and "
                      f"{'was' if len(group) == 1 else 'were'} left out of the search; to keep "
-                     f"{'it' if len(group) == 1 else 'them'}, name "
-                     f"{'it' if len(group) == 1 else 'them'} in --columns (columns=[...])")
+                     f"{'it' if len(group) == 1 else 'them'}, add --include "
+                     f"{','.join(group)} (include=[...] in read_table)")
 
     empty = [n for n in names if n not in excluded and levels[n] == 0]
     constant = [n for n in names if n not in excluded and levels[n] == 1]
@@ -1024,8 +1031,8 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     kept = kept.reset_index(drop=True)
 
     for n in used:
-        if selected is None or n not in selected:
-            continue  # only a column named in `columns` can still look like one
+        if (selected is None or n not in selected) and n not in kept_anyway:
+            continue  # only a column kept on request can still look like one
         if n in fast and fast[n][2] is False:
             continue  # a float column with fractional values is no identifier
         if _looks_like_identifier(kept[n]):

@@ -123,10 +123,14 @@ def test_identifier_date_and_free_text_are_left_out_with_a_note(tmp_path):
                                    "comment": "free text"}
     for name in ("patient", "visit", "comment"):
         note = next(n for n in data.notes if repr(name) in n)
-        assert "left out" in note and "--columns" in note  # says how to put it back
+        assert "left out" in note and f"--include {name}" in note  # how to put it back
     # naming a column puts it back
     kept = read_table(path, columns=["visit", "x", "y"])
     assert kept.variables == ("visit", "x", "y")
+    kept = read_table(path, include=["patient"])
+    assert kept.variables == ("patient", "x", "y", "smoker")
+    with pytest.raises(DataValidationError, match="unknown column 'nope' in 'include'"):
+        read_table(path, include=["nope"])
 
 
 def test_a_row_number_is_left_out_but_a_count_is_not():

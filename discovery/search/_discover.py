@@ -150,9 +150,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # From here on, variable indices follow the order of the names: enumeration and every
     # choice the search makes are then independent of the data's column order.
     names = tuple(test_obj.variables)
+    notes: list[str] = []
+    if dataset is not None:
+        knowledge = _knowledge_within(knowledge, dataset, notes)
     knowledge.check_variables(names)
     index = {v: i for i, v in enumerate(names)}
-    notes: list[str] = []
     depth = max_depth
     if test_obj.n is not None and test_name == "fisher-z":
         cap = test_obj.n - 4
@@ -233,6 +235,25 @@ def _as_dataset(data, *, columns, missing):
         return prepare_frame(data, columns=columns, missing=missing)
     raise DataValidationError(f"data must be a pandas DataFrame or a Dataset; got "
                               f"{type(data).__name__} (read files with discovery.read_table)")
+
+
+def _knowledge_within(knowledge: Knowledge, dataset, notes: list) -> Knowledge:
+    """Drop (with a note) the knowledge about columns that are in the data but not searched
+    (not selected, excluded, constant...); a name absent from the data stays an error."""
+    outside = sorted((knowledge.variables & set(dataset.kinds)) - set(dataset.variables))
+    if not outside:
+        return knowledge
+    keep = set(dataset.variables) | (knowledge.variables - set(dataset.kinds))
+    fields = ("locked", "locked_directions", "forbidden", "forbidden_directions")
+    pairs = {f: tuple(p for p in getattr(knowledge, f) if set(p) <= keep) for f in fields}
+    dropped = sum(len(getattr(knowledge, f)) - len(pairs[f]) for f in fields)
+    stages = tuple(tuple(v for v in g if v in keep) for g in knowledge.stages)
+    why = "; ".join(f"{v!r} {dataset.excluded.get(v, 'not used')}" for v in outside[:6])
+    notes.append(f"knowledge about {', '.join(repr(v) for v in outside)}, which "
+                 f"{'is' if len(outside) == 1 else 'are'} in the data but not in the search "
+                 f"({why}), was dropped: {dropped} pair statement(s) and "
+                 f"{'its' if len(outside) == 1 else 'their'} place in the stages")
+    return Knowledge(**pairs, stages=tuple(g for g in stages if g))
 
 
 def _cancel_check(cancel):
