@@ -731,9 +731,13 @@ class Summary:
             for e in r.edges)
         notes = "".join(f"<li>{escape(n)}</li>" for n in self.notes())
         assumptions = "".join(f"<li>{escape(a)}</li>" for a in ASSUMPTIONS)
+        words = "".join(f"<br>{escape(w)}" for w in self.legend_lines() if w)
+        alone = self.isolated()
         return (f"<p>{len(r.variables)} variables; test {escape(r.settings.test)}, "
                 f"α = {r.settings.alpha:g}</p><table><tr><th>edge</th><th>max p</th>"
                 f"<th>why</th></tr>{rows}</table>"
+                + (f"<p><small>{words[4:]}</small></p>" if words else "")
+                + (f"<p>Isolated (no edge): {escape(', '.join(alone))}</p>" if alone else "")
                 + (f"<ol>{notes}</ol>" if notes else "")
                 + f"<p>Assumptions and cautions:</p><ul>{assumptions}</ul>")
 

@@ -12,7 +12,6 @@ import json
 
 import numpy as np
 import pandas as pd
-import pytest
 
 from discovery import discover
 from discovery.independence import FisherZ, IndependenceTest
