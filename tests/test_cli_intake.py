@@ -78,6 +78,17 @@ def test_exclude_and_include(tmp_path, capsys):
     assert doc["variables"] == ["a", "b", "c"]
     assert doc["data"]["excluded"] == {"visit": "date/time", "d": "excluded on request"}
     assert "--include visit" in out
+    code, _, err = run(capsys, "discover", path, "--include", "visit")
+    assert code == 2 and "column 'visit' holds text" in err  # kept, and Fisher's z says why
+    # kept on request under 'auto': its tests return no p-value, so its pairs are untestable
+    # (kept and marked), never read as dependent evidence
+    code, out, err = run(capsys, "discover", path, "--include", "visit", "--test", "auto",
+                         "--max-depth", "0", "--out", tmp_path / "g.json")
+    assert code == 0, err
+    doc = json.loads((tmp_path / "g.json").read_text())
+    visit = [e for e in doc["edges"] if "visit" in (e["from"], e["to"])]
+    assert visit and all(e["untestable"] for e in visit)
+    assert "untestable" in out
     code, _, err = run(capsys, "discover", path, "--exclude", "nope")
     assert code == 2 and "unknown column 'nope' in 'exclude'" in err
 

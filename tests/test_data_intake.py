@@ -176,3 +176,19 @@ def test_exclude_leaves_columns_out(tmp_path):
     assert dict(data.excluded) == {"b": "excluded on request", "c": "excluded on request"}
     with pytest.raises(DataValidationError, match="unknown column 'd' in 'exclude'"):
         read_table(path, exclude=["d"])
+
+
+def test_knowledge_about_an_excluded_column_is_dropped_with_a_note_in_the_library():
+    from discovery import Knowledge
+    from discovery.exceptions import KnowledgeError
+    rng = np.random.default_rng(8)
+    a = rng.normal(size=300)
+    frame = pd.DataFrame({"a": a, "b": a + rng.normal(size=300), "d": rng.normal(size=300)})
+    data = prepare_frame(frame, exclude=["d"])
+    result = discover(data, knowledge=Knowledge(locked=[("b", "d")], forbidden=[("a", "b")],
+                                                stages=[["a", "d"], ["b"]]))
+    assert result.knowledge.locked == () and result.knowledge.stages == (("a",), ("b",))
+    assert result.edge("a", "b") is None  # the rest of the knowledge still applies
+    assert any("knowledge about 'd'" in n and "excluded on request" in n for n in result.notes)
+    with pytest.raises(KnowledgeError, match=r"unknown variable\(s\) \['zz'\]"):
+        discover(data, knowledge=Knowledge(locked=[("b", "zz")]))
