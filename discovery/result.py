@@ -303,7 +303,8 @@ class PairEvidence:
     def as_text(self) -> str:
         """The pair's evidence as the window's Inspector shows it: the edge (or its absence),
         why each arrowhead is there, what removed it, the triples through it, every test."""
-        lines = [f"{self.a} — {self.b}: " + (self.edge.arrow() if self.edge else "not adjacent")]
+        lines = [f"Pair {self.a}, {self.b}: " + (f"edge {self.edge.arrow()}" if self.edge
+                                                  else "not adjacent")]
         if self.edge and self.edge.locked:
             lines.append("  locked by knowledge: kept whatever the data say")
         if self.edge and self.edge.untestable:

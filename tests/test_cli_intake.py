@@ -146,10 +146,10 @@ def test_explain_command_and_option(tmp_path, capsys):
     result = tmp_path / "r.json"
     code, out, err = run(capsys, "discover", path, "--out", result, "--explain", "a,c")
     assert code == 0, err
-    assert "a — c: not adjacent" in out and "removed: independent given {b}" in out
+    assert "Pair a, c: not adjacent" in out and "removed: independent given {b}" in out
     code, out, err = run(capsys, "explain", result, "a", "b")
     assert code == 0, err
-    assert out.startswith("a — b: a — b") and "test given {}: p = " in out
+    assert out.startswith("Pair a, b: edge a — b") and "test given {}: p = " in out
     assert "Caution" in out
     code, _, err = run(capsys, "explain", result, "a", "bb")
     assert code == 2 and "did you mean 'b'" in err and len(err.strip().splitlines()) == 1
