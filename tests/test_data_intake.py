@@ -192,3 +192,10 @@ def test_knowledge_about_an_excluded_column_is_dropped_with_a_note_in_the_librar
     assert any("knowledge about 'd'" in n and "excluded on request" in n for n in result.notes)
     with pytest.raises(KnowledgeError, match=r"unknown variable\(s\) \['zz'\]"):
         discover(data, knowledge=Knowledge(locked=[("b", "zz")]))
+
+
+def test_detected_separator_equal_to_the_decimal_mark_is_an_error(tmp_path):
+    path = write(tmp_path / "t.csv", "a,b\n1,5\n2,6\n3,7\n")
+    with pytest.raises(DataValidationError, match="detected separator ',' is also the "
+                                                  "decimal mark"):
+        read_table(path, decimal=",")
