@@ -1,4 +1,4 @@
-"""The ``edgewise`` command: discover, simulate, bench, gui.
+"""The ``edgewise`` command: discover, explain, simulate, bench, gui.
 
 Every command has ``--help`` with an example. Errors are one line on stderr and a non-zero exit
 (2 for bad input, 1 for anything unexpected), never a traceback; input files are never
@@ -64,7 +64,26 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="drop rows with any missing value, or delete test-wise "
                         "(default: drop)")
     d.add_argument("--columns", metavar="A,B,...",
-                   help="comma-separated columns to include (default: all usable)")
+                   help="comma-separated columns to use (default: all usable; a column "
+                        "named here is kept even if it looks like an identifier or a date)")
+    d.add_argument("--exclude", metavar="A,B,...",
+                   help="comma-separated columns to leave out")
+    d.add_argument("--include", metavar="A,B,...",
+                   help="keep these columns although they look like an identifier, a date "
+                        "or free text (left out by default, with a note)")
+    d.add_argument("--sep", metavar="CHAR",
+                   help="column separator (default: detected from , ; tab |); write \\t "
+                        "or tab for tab")
+    d.add_argument("--decimal", metavar="CHAR", default=".",
+                   help="decimal mark, . (default) or , as in 1,5")
+    d.add_argument("--thousands", metavar="CHAR",
+                   help="thousands separator, e.g. , as in 1,250 (default: none)")
+    d.add_argument("--na-values", metavar="A,B,...", dest="na_values",
+                   help="more cell contents that mean missing, comma-separated (besides "
+                        "empty, NA, N/A, n/a, #N/A, NaN, null, ?, - and .)")
+    d.add_argument("--explain", action="append", default=[], metavar="A,B",
+                   help="after the search, print the evidence for the pair A,B "
+                        "(repeatable)")
     d.add_argument("--test-option", action="append", default=[], metavar="NAME=VALUE",
                    dest="test_option",
                    help="an option of the chosen test, repeatable (e.g. --test-option "
@@ -78,7 +97,8 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--graphml", metavar="FILE.graphml", help="write the diagram as GraphML")
     d.add_argument("--figure", metavar="FILE",
                    help="draw the diagram to a PNG, SVG or PDF file")
-    d.add_argument("--quiet", action="store_true", help="no summary on stdout")
+    d.add_argument("--quiet", action="store_true",
+                   help="no progress on stderr and no summary on stdout")
     from . import cli_exchange
     cli_exchange.add_discover_options(d)
 
@@ -110,6 +130,9 @@ def _build_parser() -> argparse.ArgumentParser:
     b.add_argument("--write", metavar="FILE.md",
                    help="replace the search section of this Markdown file with the figures")
 
+    from . import cli_explain
+    cli_explain.register(sub)
+
     g = sub.add_parser(
         "gui", help="open the desktop window",
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -136,8 +159,10 @@ def main(argv=None) -> int:
     if args.command is None:
         parser.print_help()
         return 2
-    handler = getattr(args, "handler", None) or {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
-               "gui": _cmd_gui}[args.command]
+    from . import cli_explain
+    handler = getattr(args, "handler", None) or {
+        "discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
+        "gui": _cmd_gui, "explain": cli_explain.run}[args.command]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # notes reach the user through the result
@@ -161,14 +186,20 @@ def main(argv=None) -> int:
 
 
 class _Progress:
-    """Progress on stderr, shown only once a run has taken more than a moment."""
+    """Progress on stderr, shown only once a run has taken more than a moment, and only when
+    stderr is a terminal (a log file gets no carriage returns) and not ``--quiet``."""
 
-    def __init__(self, delay: float = 0.7):
+    def __init__(self, delay: float = 0.7, *, enabled: bool | None = None):
         self.started = time.perf_counter()
         self.delay = delay
         self.shown = False
+        if enabled is None:
+            enabled = _is_terminal(sys.stderr)
+        self.enabled = enabled
 
     def __call__(self, event: dict):
+        if not self.enabled:
+            return
         elapsed = time.perf_counter() - self.started
         if elapsed < self.delay:
             return
@@ -180,6 +211,20 @@ class _Progress:
     def close(self):
         if self.shown:
             print(file=sys.stderr)
+
+
+def _is_terminal(stream) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):  # replaced or closed streams
+        return False
+
+
+def _names(value: str | None) -> list[str] | None:
+    """``"a, b"`` -> ``["a", "b"]``; None stays None."""
+    if value is None:
+        return None
+    return [c.strip() for c in value.split(",") if c.strip()]
 
 
 def _output_path(value: str | None, option: str, suffixes=None) -> Path | None:
@@ -265,16 +310,23 @@ def _cmd_discover(args) -> int:
         "--edges": _output_path(args.edges, "--edges", [".csv"]),
     }
     _guard_outputs(outputs, [args.data, args.knowledge, args.lock_diagram, args.truth])
-    columns = [c.strip() for c in args.columns.split(",") if c.strip()] if args.columns \
-        else None
-    dataset = read_table(args.data, columns=columns, missing=args.missing)
+    from .cli_explain import check_names, explain_pair, parse_pair
+    pairs = [parse_pair(text) for text in args.explain]
+    dataset = read_table(args.data, columns=_names(args.columns), exclude=_names(args.exclude),
+                         include=_names(args.include), missing=args.missing, sep=args.sep,
+                         decimal=args.decimal, thousands=args.thousands,
+                         na_values=_names(args.na_values))
     knowledge = read_knowledge(args.knowledge) if args.knowledge else None
     if knowledge is not None:
-        knowledge.check_variables(dataset.variables, source=args.knowledge)
+        # a name absent from the file is an error; knowledge about a column that is in the
+        # file but not searched is dropped with a note by the search
+        knowledge.check_variables(dataset.kinds, source=args.knowledge)
     from .cli_exchange import discover_knowledge, print_truth_scores, read_truth
     knowledge = discover_knowledge(args, knowledge, dataset.variables)
     truth = read_truth(args, dataset.variables)
-    progress = _Progress()
+    for a, b in pairs:  # checked before a possibly long search
+        check_names(dataset.variables, a, b, where="the search's variables")
+    progress = _Progress(enabled=False if args.quiet else None)
     with make_executor(args.jobs) as executor:
         try:
             result = discover(dataset, test=args.test, alpha=args.alpha,
@@ -301,6 +353,8 @@ def _cmd_discover(args) -> int:
         if written:
             print("\nWrote: " + ", ".join(str(p) for p in outputs.values() if p is not None))
         print("\n" + CAUTION)
+    for a, b in pairs:  # asked for explicitly: printed even with --quiet
+        print(("\n" if not args.quiet else "") + explain_pair(result, a, b))
     return 0
 
 

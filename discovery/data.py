@@ -99,6 +99,7 @@ __all__ = [
     "KINDS",
     "MISSING_MARKERS",
     "MISSING_POLICIES",
+    "SEPARATORS",
     "Dataset",
     "read_table",
     "prepare_frame",
@@ -110,7 +111,10 @@ __all__ = [
 KINDS = ("continuous", "binary", "categorical", "ordinal")
 
 #: Cell contents read as "missing" in CSV and TSV files, besides an empty cell.
-MISSING_MARKERS = ("", "NA", "NaN", "nan", "null", "?")
+MISSING_MARKERS = ("", "NA", "N/A", "n/a", "#N/A", "NaN", "nan", "null", "NULL", "?", "-", ".")
+
+#: Separators tried when a text file's separator is not given: comma, semicolon, tab, bar.
+SEPARATORS = (",", ";", "\t", "|")
 
 #: The missing-value policies: complete rows only, or each test on its own complete rows.
 MISSING_POLICIES = ("drop", "test-wise")
@@ -181,7 +185,8 @@ class Dataset:
         Share of missing cells (0 to 1) of every column read, over all rows read.
     excluded : Mapping[str, str]
         Columns left out, each with its reason: ``"not selected"``, ``"excluded on request"``,
-        ``"all missing"``, ``"constant"``, or ``"constant in the complete rows"``.
+        ``"all missing"``, ``"constant"``, ``"constant in the complete rows"``,
+        ``"identifier"``, ``"date/time"`` or ``"free text"``.
     source : str or None
         The path as given to :func:`read_table`; ``None`` for an in-memory frame.
     sha256 : str
@@ -345,7 +350,9 @@ def _fail(label: str, message: str) -> DataValidationError:
 
 # --------------------------------------------------------------------------- reading files
 
-def read_table(path, *, columns=None, exclude=None, missing: str = "drop") -> Dataset:
+def read_table(path, *, columns=None, exclude=None, missing: str = "drop", sep=None,
+               decimal: str = ".", thousands: str | None = None, na_values=None,
+               include=None) -> Dataset:
     """Read a CSV, TSV or Parquet file into a :class:`Dataset`.
 
     The file is read once, as bytes: the fingerprint and the table come from the same bytes,
@@ -354,17 +361,30 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop") -> Da
     Parameters
     ----------
     path : str or os.PathLike
-        ``.csv`` (comma), ``.tsv`` / ``.tab`` (tab), ``.parquet`` / ``.pq`` (needs pyarrow).
-        Other names are read as delimited text whose separator (comma, tab or semicolon) is
-        sniffed from the header line; a ``.csv`` whose header holds tabs and no comma is read
-        as tab-separated. Text must be UTF-8 (a byte-order mark is fine) or UTF-16 with a
-        byte-order mark.
+        ``.parquet`` / ``.pq`` (needs pyarrow), or delimited text under any other name
+        (``.csv``, ``.tsv``, ``.txt``...). The separator of text is detected from the first
+        lines whatever the extension: comma, semicolon, tab or bar (:data:`SEPARATORS`); the
+        one that splits every line into the same number of cells wins, the extension breaks
+        ties. Line ends may be LF, CRLF or CR alone. Text must be UTF-8 (a byte-order mark is
+        fine) or UTF-16 with a byte-order mark.
     columns : str or sequence of str, optional
-        The columns to use (default: all).
+        The columns to use (default: all usable). A column named here is kept even when it
+        looks like an identifier, a date or free text (see :func:`prepare_frame`).
     exclude : str or sequence of str, optional
         Columns to leave out.
     missing : {"drop", "test-wise"}
         The missing-value policy (see the module docstring).
+    include : str or sequence of str, optional
+        Columns to keep even though they look like an identifier, a date or free text (the
+        other columns stay as they are).
+    sep : str, optional
+        The separator, when detection is not wanted (``"\\t"`` may be written for tab).
+    decimal : str
+        The decimal mark, ``"."`` (default) or ``","`` (``"1,5"`` is one and a half).
+    thousands : str, optional
+        The thousands separator, e.g. ``","`` (``"1,250"``), ``"."`` or ``" "``.
+    na_values : str or sequence of str, optional
+        More cell contents to read as missing, besides :data:`MISSING_MARKERS`.
 
     Returns
     -------
@@ -375,7 +395,9 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop") -> Da
     DataValidationError
         The file does not exist or cannot be read; it is empty or has a header but no rows;
         its header names a column twice (which pandas would silently rename); a row has more
-        or fewer cells than the header; the text is not UTF-8; a name in ``columns`` or
+        or fewer cells than the header; the text is not UTF-8; a column holds numbers written
+        with a decimal comma or a thousands separator that ``decimal`` / ``thousands`` do not
+        describe (the message names the option); a name in ``columns`` or
         ``exclude`` is not in the file; ``missing`` is not a known policy; or every row has a
         missing value under ``missing="drop"``. Parquet without pyarrow installed.
 
@@ -396,9 +418,11 @@ def read_table(path, *, columns=None, exclude=None, missing: str = "drop") -> Da
         raise _fail(label, f"cannot read '{suffix}' files; save the table as CSV (.csv), "
                            f"TSV (.tsv) or Parquet (.parquet) and open that")
     else:
-        frame = _parse_text(raw, label, _TEXT_SUFFIXES.get(suffix))
+        frame = _parse_text(raw, label, _TEXT_SUFFIXES.get(suffix), sep=sep, decimal=decimal,
+                            thousands=thousands, na_values=na_values)
     dataset, warns = _prepare(frame, columns=columns, exclude=exclude, missing=missing,
-                              source=label, label=label, sha256=digest)
+                              source=label, label=label, sha256=digest,
+                              number_format=(decimal, thousands), include=include)
     for message in warns:
         warnings.warn(message, DegenerateDataWarning, stacklevel=2)
     return dataset
@@ -495,24 +519,62 @@ def _decode(raw: bytes, label: str) -> str:
     return text
 
 
-def _sniff_separator(header: str) -> str:
-    counts = {sep: header.count(sep) for sep in (",", "\t", ";")}
-    best = max(counts, key=lambda sep: counts[sep])
-    return best if counts[best] > 0 else ","
+def _sniff_separator(lines: list[str], preferred: str | None) -> str:
+    """The separator that splits the first lines into the same number (> 1) of cells.
+
+    Quoted cells are honoured (``csv.reader``). Among separators that split consistently,
+    the most cells wins; the extension's separator (``preferred``) breaks ties. With none
+    consistent, the one most frequent in the header line is taken.
+    """
+    sample = [line for line in lines if line.strip()][:20]
+    scores = {}
+    for candidate in SEPARATORS:
+        try:
+            widths = {len(r) for r in csv.reader(sample, delimiter=candidate)}
+        except csv.Error:
+            continue
+        if len(widths) == 1 and min(widths) > 1:
+            scores[candidate] = (min(widths), candidate == preferred)
+    if scores:
+        return max(scores, key=scores.get)
+    counts = {c: sample[0].count(c) for c in SEPARATORS} if sample else {}
+    best = max(counts, key=counts.get) if counts else ","
+    return best if counts.get(best) else (preferred or ",")
 
 
-def _parse_text(raw: bytes, label: str, sep: str | None) -> pd.DataFrame:
+def _check_option_char(value, option: str, label: str) -> None:
+    if value is not None and (not isinstance(value, str) or len(value) != 1):
+        raise _fail(label, f"{option} must be a single character, got {value!r}; e.g. "
+                           f"{option} ','")
+
+
+def _parse_text(raw: bytes, label: str, preferred: str | None, *, sep=None,
+                decimal: str = ".", thousands: str | None = None,
+                na_values=None) -> pd.DataFrame:
     text = _decode(raw, label)
-    lines = text.splitlines()
+    if "\r" in text:  # CRLF and old Mac CR-only line ends become LF
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+    if sep in ("\\t", "tab", "TAB"):
+        sep = "\t"
+    _check_option_char(sep, "sep", label)
+    _check_option_char(decimal, "decimal", label)
+    _check_option_char(thousands, "thousands", label)
+    if decimal == thousands:
+        raise _fail(label, f"the decimal mark and the thousands separator are both "
+                           f"{decimal!r}; give them different characters")
+    if isinstance(na_values, str):
+        na_values = [na_values]
+    markers = list(MISSING_MARKERS) + [str(v) for v in (na_values or ())]
+    lines = text.split("\n")
     first = next((i for i, line in enumerate(lines) if line.strip()), None)
     if first is None:
         raise _fail(label, "the file holds only blank lines; export the table again with a "
                            "header line and at least one row")
-    header_line = lines[first]
     if sep is None:
-        sep = _sniff_separator(header_line)
-    elif sep == "," and "," not in header_line and "\t" in header_line:
-        sep = "\t"  # a tab-separated file saved as .csv
+        sep = _sniff_separator(lines[first:], preferred)
+        if sep == decimal:
+            raise _fail(label, f"the detected separator {sep!r} is also the decimal mark; "
+                               f"give the separator (--sep / sep=)")
 
     header = _check_shape(text, label, sep)
     seen: dict[str, int] = {}
@@ -523,8 +585,9 @@ def _parse_text(raw: bytes, label: str, sep: str | None) -> pd.DataFrame:
         seen[name] = position
 
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=sep, na_values=list(MISSING_MARKERS),
-                            keep_default_na=False, index_col=False, skipinitialspace=True)
+        frame = pd.read_csv(io.StringIO(text), sep=sep, na_values=markers,
+                            keep_default_na=False, index_col=False, skipinitialspace=True,
+                            decimal=decimal, thousands=thousands)
     except pd.errors.EmptyDataError:
         raise _fail(label, "no columns found; export the table again with a header "
                            "line") from None
@@ -589,15 +652,18 @@ def _frame_fingerprint(frame: pd.DataFrame) -> str:
 
 
 def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
-                  source: str | None = None) -> Dataset:
+                  source: str | None = None, include=None) -> Dataset:
     """Apply the reading rules to an in-memory table.
 
     Parameters
     ----------
     frame : pandas.DataFrame
         The table; it is not modified. Column names are turned into strings.
-    columns, exclude, missing
-        As in :func:`read_table`.
+    columns, exclude, missing, include
+        As in :func:`read_table`. Columns that look like an identifier (text, or a run of
+        consecutive whole numbers, with a different value in almost every row), dates/times or
+        free text are left out with a note, unless named in ``include`` or ``columns``. Yes/no, y/n,
+        true/false and boolean columns are read as binary 1/0 with a note.
     source : str, optional
         Where the frame came from, used in messages and kept in :attr:`Dataset.source`
         (default: none; messages then say ``"data"``).
@@ -613,7 +679,8 @@ def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
     DataValidationError
         ``frame`` is not a DataFrame, has no rows or no columns, or has two columns with the
         same name; a name in ``columns`` or ``exclude`` is not in the frame; ``missing`` is
-        not a known policy; or every row has a missing value under ``missing="drop"``.
+        not a known policy; a text column holds numbers written with a decimal comma or a
+        thousands separator; or every row has a missing value under ``missing="drop"``.
 
     Warns
     -----
@@ -631,7 +698,7 @@ def prepare_frame(frame, *, columns=None, exclude=None, missing: str = "drop",
         raise _fail(label, "the table has no rows")
     digest = _frame_fingerprint(frame)
     dataset, warns = _prepare(frame, columns=columns, exclude=exclude, missing=missing,
-                              source=source, label=label, sha256=digest)
+                              source=source, label=label, sha256=digest, include=include)
     for message in warns:
         warnings.warn(message, DegenerateDataWarning, stacklevel=2)
     return dataset
@@ -731,8 +798,132 @@ def _flat_columns(block: pd.DataFrame) -> list[str]:
             if (n in flat if n in floats else block[n].nunique() < 2)]
 
 
+_DECIMAL_COMMA = re.compile(r"^[-+]?\d*,\d+$")
+_THOUSANDS = {",": re.compile(r"^[-+]?\d{1,3}(,\d{3})+(\.\d+)?$"),
+              ".": re.compile(r"^[-+]?\d{1,3}(\.\d{3})+(,\d+)?$"),
+              " ": re.compile(r"^[-+]?\d{1,3}( \d{3})+([.,]\d+)?$"),
+              "'": re.compile(r"^[-+]?\d{1,3}('\d{3})+(\.\d+)?$")}
+_DATE_LIKE = re.compile(r"\d{1,4}[-/.:]\d{1,2}")
+_BINARY_WORDS = ({"yes", "no"}, {"y", "n"}, {"true", "false"}, {"t", "f"})
+_ID_MIN_ROWS = 20  # fewer rows say too little to call a column an identifier
+_ID_DISTINCT_SHARE = 0.95  # "a different value in almost every row"; common practice, no source
+
+
+def _texty(series: pd.Series) -> bool:
+    """True for object and string columns (pandas 3 reads text as its own string type)."""
+    return series.dtype == object or pd.api.types.is_string_dtype(series.dtype)
+
+
+def _number_format_problem(series: pd.Series, number_format) -> str | None:
+    """How a text column would read as numbers: the option to give, or None.
+
+    A column is judged only when every value (of the first 500) is a number written with a
+    decimal comma or a thousands separator (``"1,5"``, ``"12,300"``, ``"1.250,75"``), or a
+    plain whole number.
+    """
+    decimal, thousands = number_format
+    values = series.dropna()
+    if not len(values) or pd.api.types.infer_dtype(values, skipna=True) != "string":
+        return None
+    sample = values.iloc[:500].astype(str).str.strip()
+    whole = sample.str.match(r"^[-+]?\d+$")
+    for mark, pattern in _THOUSANDS.items():
+        if mark == thousands:
+            continue
+        grouped = sample.str.match(pattern)
+        if grouped.any() and (grouped | whole).all() and not (
+                mark == "," and sample.str.match(r"^[-+]?\d{1,3},\d{3}$").all()
+                and decimal != ","):
+            shown = f"'{mark}'" if mark in " '" else mark
+            extra = " --decimal ," if mark in ". " and sample.str.contains(",").any() else ""
+            return (f"numbers with a thousands separator ({sample[grouped].iloc[0]!r}); read "
+                    f"the file with --thousands {shown}{extra} (thousands={mark!r} in "
+                    f"read_table)")
+    if decimal != ",":
+        comma = sample.str.match(_DECIMAL_COMMA)
+        if comma.any() and (comma | whole).all():
+            return (f"numbers with a decimal comma ({sample[comma].iloc[0]!r}); read the file "
+                    f"with --decimal , (decimal=',' in read_table; the separator is then "
+                    f"usually ';')")
+    return None
+
+
+def _binary_words(series: pd.Series) -> tuple[str, str] | None:
+    """``("yes", "no")`` style labels of a two-valued text or boolean column (true first)."""
+    if pd.api.types.is_bool_dtype(series.dtype):
+        return ("TRUE", "FALSE")
+    if not _texty(series):
+        return None
+    values = series.dropna()
+    if not len(values) or pd.api.types.infer_dtype(values, skipna=True) not in (
+            "string", "boolean", "mixed"):
+        return None
+    if pd.api.types.infer_dtype(values, skipna=True) == "boolean":
+        return ("TRUE", "FALSE")
+    seen = set(values.astype(str).str.strip().unique())
+    lowered = {v.lower() for v in seen}
+    for words in _BINARY_WORDS:
+        if lowered <= words and len(lowered) == 2:
+            true = next(w for w in ("yes", "y", "true", "t") if w in words)
+            spelled = {v.lower(): v for v in seen}
+            return (spelled[true], spelled[next(iter(words - {true}))])
+    return None
+
+
+def _as_binary(series: pd.Series) -> pd.Series:
+    """A yes/no, y/n, true/false or boolean column as 1.0 / 0.0 (missing stays missing)."""
+    if pd.api.types.is_bool_dtype(series.dtype):
+        return series.astype(float)
+    lowered = series.map(lambda v: v if v is None or v != v else str(v).strip().lower())
+    mapping = {"yes": 1.0, "y": 1.0, "true": 1.0, "t": 1.0,
+               "no": 0.0, "n": 0.0, "false": 0.0, "f": 0.0}
+    return lowered.map(lambda v: mapping.get(v, np.nan) if isinstance(v, str) else
+                       (float(v) if isinstance(v, (bool, np.bool_)) else np.nan))
+
+
+def _unsearchable(series: pd.Series) -> str | None:
+    """Why a column cannot be a variable of the search, or None.
+
+    ``"date/time"``: a datetime type, or text that parses as dates/times; ``"identifier"``:
+    text (or a run of consecutive whole numbers) with a different value in almost every row;
+    ``"free text"``: such text made of several words. These carry no dependence a test can
+    read (each level is seen about once), and their tests return no p-value.
+    """
+    if pd.api.types.is_datetime64_any_dtype(series.dtype) or \
+            pd.api.types.is_timedelta64_dtype(series.dtype):
+        return "date/time"
+    values = series.dropna()
+    if not len(values):
+        return None
+    if _texty(series) and pd.api.types.infer_dtype(values, skipna=True) in (
+            "datetime", "date", "time", "datetime64"):
+        return "date/time"
+    is_text = _texty(series) and pd.api.types.infer_dtype(values, skipna=True) in (
+        "string", "mixed")
+    if is_text:
+        sample = values.iloc[:200].astype(str)
+        if sample.str.contains(_DATE_LIKE).mean() >= 0.9:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                parsed = pd.to_datetime(sample, errors="coerce", format="mixed")
+            if parsed.notna().mean() >= 0.9:
+                return "date/time"
+    if len(values) < _ID_MIN_ROWS or values.nunique() < _ID_DISTINCT_SHARE * len(values):
+        return None
+    if is_text:
+        words = values.iloc[:200].astype(str).str.split().str.len().mean()
+        return "free text" if words >= 3 else "identifier"
+    if _is_numeric(series) and values.nunique() == len(values):
+        numbers = pd.to_numeric(values).to_numpy(dtype=float)
+        whole = np.all(np.isfinite(numbers) & (numbers == np.round(numbers)))
+        if whole and numbers.max() - numbers.min() + 1 == len(numbers):
+            return "identifier"
+    return None
+
+
 def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str | None,
-             label: str, sha256: str) -> tuple[Dataset, list[str]]:
+             label: str, sha256: str, number_format=(".", None),
+             include=None) -> tuple[Dataset, list[str]]:
     names = [str(c) for c in frame.columns]
     counted = Counter(names)
     duplicates = [n for n in counted if counted[n] > 1]
@@ -745,8 +936,27 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
 
     selected = _as_names(columns, "columns")
     dropped = _as_names(exclude, "exclude")
+    kept_anyway = _as_names(include, "include") or []
     _check_known(selected, "columns", names, label)
     _check_known(dropped, "exclude", names, label)
+    _check_known(kept_anyway, "include", names, label)
+
+    for n in names:  # a number column read as text because of its number format
+        if _texty(table[n]) and (selected is None or n in selected) and \
+                (dropped is None or n not in dropped):
+            problem = _number_format_problem(table[n], number_format)
+            if problem:
+                raise _fail(label, f"column {n!r} holds {problem}")
+    notes: list[str] = []
+    for n in names:  # yes/no, true/false columns become 1/0
+        if table[n].dtype == np.float64:
+            continue
+        words = _binary_words(table[n])
+        if words is not None:
+            table[n] = _as_binary(table[n])
+            if (selected is None or n in selected) and (dropped is None or n not in dropped):
+                notes.append(f"column {n!r} ({words[0]}/{words[1]}) read as binary: "
+                             f"1 = {words[0]}, 0 = {words[1]}")
 
     rows_read = len(table)
     fast = _float_profile(table, names)
@@ -762,8 +972,24 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
             excluded[n] = "not selected"
         elif dropped is not None and n in dropped:
             excluded[n] = "excluded on request"
-    notes: list[str] = []
     warns: list[str] = []
+    left_out: dict[str, list[str]] = {}
+    for n in names:  # identifiers, dates and free text, unless named in `columns`
+        if n in excluded or (selected is not None and n in selected) or n in kept_anyway:
+            continue
+        why = _unsearchable(table[n])
+        if why is not None:
+            excluded[n] = why
+            left_out.setdefault(why, []).append(n)
+    for why, group in left_out.items():
+        looks = {"date/time": "dates or times", "identifier": "an identifier (a different "
+                 "value in almost every row)", "free text": "free text (a different value in "
+                 "almost every row)"}[why]
+        notes.append(f"{_columns_word(group)} {_quote_list(group)} "
+                     f"look{'s' if len(group) == 1 else ''} like {looks} and "
+                     f"{'was' if len(group) == 1 else 'were'} left out of the search; to keep "
+                     f"{'it' if len(group) == 1 else 'them'}, add --include "
+                     f"{','.join(group)} (include=[...] in read_table)")
 
     empty = [n for n in names if n not in excluded and levels[n] == 0]
     constant = [n for n in names if n not in excluded and levels[n] == 1]
@@ -828,6 +1054,8 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     kept = kept.reset_index(drop=True)
 
     for n in used:
+        if (selected is None or n not in selected) and n not in kept_anyway:
+            continue  # only a column kept on request can still look like one
         if n in fast and fast[n][2] is False:
             continue  # a float column with fractional values is no identifier
         if _looks_like_identifier(kept[n]):

@@ -3,11 +3,15 @@
 The look (docs/result-format.md, "The figure"): a warm light-grey canvas; each variable a white
 rounded box with a slate border; edges slate — directed edges solid with a filled head that
 stops at the box border, undirected edges solid without heads, contested edges dashed brick red
-with open heads at both ends. Knowledge is overlaid: a locked pair carries a short deep-teal
-double bar across its edge; a forbidden pair is a faint dotted line with a small cross (at the
-middle, or near the end whose arrowhead is forbidden for a forbidden direction); stages are
-soft bands behind their variables. A footer holds a legend, the caption
-``Edgewise · test … · α … · n rows`` and a one-line caution.
+without heads, broken in the middle by a small "?" badge (never open heads at both ends: the
+field reads those as a bidirected edge, a hidden common cause). An untestable pair (a test
+returned no p-value) carries a small grey "no p" badge. Knowledge is overlaid: a locked pair
+carries a short deep-teal double bar across its edge, placed along the edge where it is
+farthest from other lines (away from crossings); a forbidden pair is a faint dotted line with a
+small cross (at the middle, or near the end whose arrowhead is forbidden for a forbidden
+direction); stages are soft bands behind their variables. A footer holds a legend with an
+entry for every mark drawn, the caption ``Edgewise · test … · α … · n rows`` and the whole
+caution, wrapped to the figure's width.
 
 Layout (:func:`layout_positions`) is deterministic. With stages, each stage is a band of
 columns read left to right. Otherwise variables are put in columns by a longest-path layering
@@ -569,8 +573,10 @@ def draw_result(result: SearchResult, path=None, *, positions=None, ax=None, tit
     matplotlib.figure.Figure
         Made with the Agg canvas; pyplot is never used. Artists carry ids (``gid``):
         ``node-<k>`` and ``label-<k>`` (k indexes ``result.variables``), ``edge-<i>``,
-        ``head-<i>-target`` / ``head-<i>-source`` and ``locked-<i>`` (i indexes
-        ``result.edges``), ``forbidden-<k>``, ``band-<k>``.
+        ``head-<i>-target``, ``contested-<i>`` (the "?" badge), ``untestable-<i>`` and
+        ``locked-<i>`` (i indexes ``result.edges``), ``forbidden-<k>``, ``band-<k>``,
+        ``legend-<entry>`` for every legend entry, ``caption``, ``caution`` (first line) and
+        ``caution-<k>`` (its further lines).
 
     Raises
     ------
@@ -614,13 +620,15 @@ def draw_result(result: SearchResult, path=None, *, positions=None, ax=None, tit
     lo, hi = lo - 0.45, hi + 0.45
     extent = hi - lo
     top_pt = _TITLE_PT if title else 0.0
+    entries = _legend_entries(result, show_knowledge, bool(bands))
 
     if ax is None:
         unit = min(_MAX_UNIT_PT, (_MAX_FIG_IN * 72) / extent[0],
                    (_MAX_FIG_IN * 72 - _FOOTER_PT - top_pt) / extent[1])
         unit = max(unit, _MIN_UNIT_PT)
         width_in = max(extent[0] * unit / 72, _MIN_FIG_W_IN)
-        height_in = max((extent[1] * unit + _FOOTER_PT + top_pt) / 72, _MIN_FIG_H_IN)
+        footer = _footer_layout(result, entries, width_in * 72)
+        height_in = max((extent[1] * unit + footer["height"] + top_pt) / 72, _MIN_FIG_H_IN)
         fig = Figure(figsize=(width_in, height_in), facecolor=CANVAS)
         FigureCanvasAgg(fig)
         ax = fig.add_axes((0, 0, 1, 1))
@@ -630,31 +638,33 @@ def draw_result(result: SearchResult, path=None, *, positions=None, ax=None, tit
         box = ax.get_position()
         ax_w_pt = box.width * fig.get_figwidth() * 72
         ax_h_pt = box.height * fig.get_figheight() * 72
+        footer = _footer_layout(result, entries, ax_w_pt)
         unit = max(min(ax_w_pt / extent[0],
-                       max(ax_h_pt - _FOOTER_PT - top_pt, 1.0) / extent[1]), 1.0)
+                       max(ax_h_pt - footer["height"] - top_pt, 1.0) / extent[1]), 1.0)
     ax.set_axis_off()
     ax.set_facecolor(CANVAS)
     ax.patch.set_visible(True)
     # limits that make one unit = `unit` points in both directions, footer below, title above
     cx = (lo[0] + hi[0]) / 2
     half_w = ax_w_pt / unit / 2
-    graph_h = (ax_h_pt - _FOOTER_PT - top_pt) / unit
-    y_bottom = (lo[1] + hi[1]) / 2 - graph_h / 2 - _FOOTER_PT / unit
+    graph_h = (ax_h_pt - footer["height"] - top_pt) / unit
+    y_bottom = (lo[1] + hi[1]) / 2 - graph_h / 2 - footer["height"] / unit
     ax.set_xlim(cx - half_w, cx + half_w)
     ax.set_ylim(y_bottom, y_bottom + ax_h_pt / unit)
 
     font_pt = _FONT_PER_UNIT * unit
     line_w = float(np.clip(0.034 * unit, 0.5, 1.4))
     _draw_bands(ax, bands, font_pt)
-    marks = [_bezier(p, c, q, (t0 + t1) / 2) for (p, c, q, t0, t1), e in zip(routes, result.edges)
-             if e.locked and show_knowledge]
+    lock_at = {i: _clear_spot(i, routes, pos, sizes)
+               for i, e in enumerate(result.edges) if e.locked and show_knowledge}
+    marks = [_bezier(*routes[i][:3], t) for i, t in lock_at.items()]
     for k, ((_, _, where), route) in enumerate(zip(forbidden, forbidden_routes)):
         marks.append(_draw_forbidden(ax, k, route, where, line_w, marks))
     for i, (e, route) in enumerate(zip(result.edges, routes)):
-        _draw_edge(ax, i, e, route, line_w, show_knowledge)
+        _draw_edge(ax, i, e, route, line_w, show_knowledge, lock_at.get(i), font_pt)
     for k, v in enumerate(names):
         _draw_node(ax, k, v, pos[k], sizes[k], font_pt, line_w)
-    _draw_footer(fig, ax, result, show_knowledge)
+    _draw_footer(fig, ax, result, footer)
     if title:
         ax.annotate(title, xy=(0, 1), xycoords="axes fraction", xytext=(12, -8),
                     textcoords="offset points", ha="left", va="top", fontsize=11,
@@ -735,27 +745,63 @@ def _unit(v):
     return v / (np.hypot(*v) or 1.0)
 
 
-def _draw_edge(ax, i, e, route, line_w, show_knowledge):
+def _clear_spot(i, routes, pos, sizes) -> float:
+    """Where along edge ``i`` (a curve parameter) its locked bar sits: the point of the middle
+    half of the edge farthest from every other edge and from the boxes, so that the bar
+    never lands on a crossing."""
+    p, c, q, t0, t1 = routes[i]
+    ts = t0 + (t1 - t0) * np.linspace(0.3, 0.7, 9)
+    candidates = _bezier(p, c, q, ts)
+    others = [_bezier(*r[:3], np.linspace(r[3], r[4], 24)) for k, r in enumerate(routes)
+              if k != i]
+    clearance = np.full(len(ts), np.inf)
+    for pts in others:
+        d = np.hypot(*(candidates[:, None, :] - pts[None, :, :]).transpose(2, 0, 1)).min(axis=1)
+        clearance = np.minimum(clearance, d)
+    if len(pos):
+        inside = np.max(np.abs(candidates[:, None, :] - pos[None, :, :]) - sizes[None] / 2,
+                        axis=2).min(axis=1)
+        clearance = np.minimum(clearance, inside + 0.3)
+    # prefer the middle when several spots are equally clear
+    score = np.minimum(clearance, 0.9) - 0.05 * np.abs(np.linspace(-1, 1, len(ts)))
+    return float(ts[int(np.argmax(score))])
+
+
+def _draw_edge(ax, i, e, route, line_w, show_knowledge, lock_t=None, font_pt=10.0):
     p, c, q, t0, t1 = route
     contested = e.kind == "contested"
     color = BRICK if contested else SLATE
     start, end = t0, t1
-    if e.kind == "directed" or contested:
+    if e.kind == "directed":
         end = _t_back(p, c, q, t1, _HEAD_L * 0.92, toward=0.0)
-        _head(ax, _bezier(p, c, q, t1), _unit(_bezier_d(p, c, q, t1)), filled=not contested,
+        _head(ax, _bezier(p, c, q, t1), _unit(_bezier_d(p, c, q, t1)), filled=True,
               color=color, line_w=line_w, gid=f"head-{i}-target")
-    if contested:
-        start = _t_back(p, c, q, t0, _HEAD_L * 0.92, toward=1.0)
-        _head(ax, _bezier(p, c, q, t0), -_unit(_bezier_d(p, c, q, t0)), filled=False,
-              color=color, line_w=line_w, gid=f"head-{i}-source")
     straight = np.allclose(c, (p + q) / 2)
-    pts = _bezier(p, c, q, np.linspace(start, end, 2 if straight else 32))
-    ax.add_line(Line2D(pts[:, 0], pts[:, 1], color=color, linewidth=line_w,
-                       linestyle="--" if contested else "-", dashes=(4, 2.5) if contested
-                       else (None, None), solid_capstyle="butt", dash_capstyle="butt",
-                       zorder=2, gid=f"edge-{i}"))
+    style = dict(color=color, linewidth=line_w, solid_capstyle="butt", dash_capstyle="butt",
+                 zorder=2)
+    if contested:
+        # dashed, no heads, broken in the middle around a "?" badge
+        t_mid = (t0 + t1) / 2
+        gap_a = _t_back(p, c, q, t_mid, _BADGE_R * 1.6, toward=0.0)
+        gap_b = _t_back(p, c, q, t_mid, _BADGE_R * 1.6, toward=1.0)
+        xs, ys = [], []
+        for a, b in ((start, gap_a), (gap_b, end)):
+            pts = _bezier(p, c, q, np.linspace(a, b, 2 if straight else 16))
+            xs += list(pts[:, 0]) + [np.nan]
+            ys += list(pts[:, 1]) + [np.nan]
+        ax.add_line(Line2D(xs, ys, linestyle="--", dashes=(4, 2.5), gid=f"edge-{i}", **style))
+        _badge(ax, _bezier(p, c, q, t_mid), "?", BRICK, line_w, font_pt, gid=f"contested-{i}")
+    else:
+        pts = _bezier(p, c, q, np.linspace(start, end, 2 if straight else 32))
+        ax.add_line(Line2D(pts[:, 0], pts[:, 1], linestyle="-", gid=f"edge-{i}", **style))
+    if e.untestable:
+        t_badge = t0 + (t1 - t0) * (0.3 if contested else 0.5)
+        if lock_t is not None and abs(lock_t - t_badge) < 0.15 * (t1 - t0):
+            t_badge = t0 + (t1 - t0) * 0.25
+        _badge(ax, _bezier(p, c, q, t_badge), "no p", SLATE, line_w, font_pt * 0.8,
+               gid=f"untestable-{i}", wide=True)
     if show_knowledge and e.locked:
-        t = (t0 + t1) / 2
+        t = lock_t if lock_t is not None else (t0 + t1) / 2
         mid, tangent = _bezier(p, c, q, t), _unit(_bezier_d(p, c, q, t))
         normal = np.array([-tangent[1], tangent[0]])
         xs, ys = [], []
@@ -766,6 +812,21 @@ def _draw_edge(ax, i, e, route, line_w, show_knowledge):
             ys += list(seg[:, 1])
         ax.add_line(Line2D(xs, ys, color=TEAL, linewidth=line_w * 1.7,
                            solid_capstyle="butt", zorder=4, gid=f"locked-{i}"))
+
+
+_BADGE_R = 0.13  # radius of the contested "?" badge (units)
+
+
+def _badge(ax, centre, text, color, line_w, font_pt, *, gid, wide=False):
+    """A small white rounded badge with a short text, centred on an edge."""
+    w = _BADGE_R * (2.6 if wide else 1.0)
+    ax.add_patch(FancyBboxPatch((centre[0] - w, centre[1] - _BADGE_R), 2 * w, 2 * _BADGE_R,
+                                boxstyle=BoxStyle("Round", pad=0.0, rounding_size=_BADGE_R),
+                                facecolor="#FFFFFF", edgecolor=color, linewidth=line_w * 0.8,
+                                zorder=5, gid=gid))
+    ax.text(centre[0], centre[1], text, ha="center", va="center_baseline", color=color,
+            fontsize=max(font_pt * 0.75, 5.0), fontfamily=FONT, fontweight="bold", zorder=6,
+            parse_math=False, gid=f"{gid}-text")
 
 
 def _forbidden_pairs(result, index) -> list[tuple[int, int, float]]:
@@ -804,59 +865,124 @@ def _draw_forbidden(ax, k, route, where, line_w, marks):
     return mid
 
 
-def _draw_footer(fig, ax, result, show_knowledge):
-    """Legend glyphs, the caption and the caution, laid out in points from the axes'
-    bottom-left corner."""
-    to_pt = (mtransforms.Affine2D().scale(1 / 72) + fig.dpi_scale_trans
-             + mtransforms.ScaledTranslation(0, 0, ax.transAxes))
+_LEGEND_LABELS = {"directed": "directed", "undirected": "undirected",
+                  "contested": "contested (?)", "untestable": "untestable (no p-value)",
+                  "locked": "locked", "forbidden": "forbidden", "stages": "stage"}
+
+
+def _legend_entries(result, show_knowledge, bands) -> list[str]:
+    """One entry for every kind of mark the figure draws, in a fixed order."""
     kinds = {e.kind for e in result.edges}
     entries = [k for k in ("directed", "undirected", "contested") if k in kinds]
+    if any(e.untestable for e in result.edges):
+        entries.append("untestable")
     if show_knowledge and any(e.locked for e in result.edges):
         entries.append("locked")
     if show_knowledge and (result.knowledge.forbidden or result.knowledge.forbidden_directions):
         entries.append("forbidden")
-    x, y = 12.0, 35.0
-    lw = 1.0
-    for entry in entries:
-        color = BRICK if entry == "contested" else SLATE
-        seg = np.array([[x, y], [x + 20, y]])
-        if entry == "forbidden":
-            ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE, alpha=0.5,
-                               linewidth=lw, linestyle=(0, (1, 2)), gid="legend-forbidden"))
-            ax.add_line(Line2D([x + 7, x + 13, np.nan, x + 7, x + 13],
-                               [y - 3, y + 3, np.nan, y + 3, y - 3], transform=to_pt,
-                               color=SLATE, alpha=0.6, linewidth=lw))
-        elif entry == "locked":
-            ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE,
-                               linewidth=lw))
-            ax.add_line(Line2D([x + 8.5, x + 8.5, np.nan, x + 11.5, x + 11.5],
-                               [y - 4, y + 4, np.nan, y - 4, y + 4], transform=to_pt,
-                               color=TEAL, linewidth=1.6, solid_capstyle="butt",
-                               gid="legend-locked"))
+    if bands:
+        entries.append("stages")
+    return entries
+
+
+def _wrap(text: str, width_pt: float, size: float) -> list[str]:
+    """Greedy word wrap of ``text`` to lines at most ``width_pt`` wide at font ``size``."""
+    lines, line = [], ""
+    for word in text.split():
+        trial = f"{line} {word}".strip()
+        if line and _text_width(trial) * size / 10 > width_pt:
+            lines.append(line)
+            line = word
         else:
-            dashed = entry == "contested"
-            x0 = x + (5 if dashed else 0)
-            ax.add_line(Line2D([x0, x + (15 if entry != "undirected" else 20)], [y, y], transform=to_pt, color=color,
-                               linewidth=lw, linestyle="--" if dashed else "-",
-                               dashes=(3, 2) if dashed else (None, None),
-                               gid=f"legend-{entry}"))
-            heads = [(x + 20, 1)] if entry == "directed" else []
-            if dashed:
-                heads = [(x + 20, 1), (x, -1)]
-            for tip, sign in heads:
-                ax.add_patch(Polygon([[tip, y], [tip - 5 * sign, y + 2.2],
-                                      [tip - 5 * sign, y - 2.2]], closed=True,
-                                     transform=to_pt, fill=not dashed,
-                                     facecolor=color if not dashed else "none",
-                                     edgecolor=color, linewidth=lw))
-        ax.text(x + 25, y, entry, transform=to_pt, ha="left", va="center_baseline",
-                fontsize=7, fontfamily=FONT, color=SLATE)
-        x += 25 + _text_width(entry) * 0.7 + 16
-    ax.text(12, 20, caption(result), transform=to_pt, ha="left", va="baseline",
+            line = trial
+    if line:
+        lines.append(line)
+    return lines
+
+
+def _footer_layout(result, entries, width_pt) -> dict:
+    """Rows of legend entries, the caution's lines and the footer's height, for a figure (or
+    axes) ``width_pt`` points wide."""
+    usable = max(width_pt - 24.0, 60.0)
+    rows, row, x = [], [], 0.0
+    for entry in entries:
+        w = 25 + _text_width(_LEGEND_LABELS[entry]) * 0.7 + 16
+        if row and x + w > usable:
+            rows.append(row)
+            row, x = [], 0.0
+        row.append(entry)
+        x += w
+    if row:
+        rows.append(row)
+    caution = _wrap(CAUTION + ".", usable, 7.0)
+    height = 8 + 9 * len(caution) + 12 + 15 * max(len(rows), 1) + 4
+    return {"rows": rows, "caution": caution, "height": max(height, _FOOTER_PT)}
+
+
+def _draw_footer(fig, ax, result, footer):
+    """Legend glyphs, the caption and the whole caution (wrapped), laid out in points from
+    the axes' bottom-left corner."""
+    to_pt = (mtransforms.Affine2D().scale(1 / 72) + fig.dpi_scale_trans
+             + mtransforms.ScaledTranslation(0, 0, ax.transAxes))
+    caution = footer["caution"]
+    caption_y = 8 + 9 * len(caution) + 3
+    lw = 1.0
+    for r, entries in enumerate(footer["rows"]):
+        x, y = 12.0, caption_y + 15 + 15 * (len(footer["rows"]) - 1 - r)
+        for entry in entries:
+            _legend_glyph(ax, to_pt, entry, x, y, lw)
+            label = _LEGEND_LABELS[entry]
+            ax.text(x + 25, y, label, transform=to_pt, ha="left", va="center_baseline",
+                    fontsize=7, fontfamily=FONT, color=SLATE, gid=f"legend-{entry}-label")
+            x += 25 + _text_width(label) * 0.7 + 16
+    ax.text(12, caption_y, caption(result), transform=to_pt, ha="left", va="baseline",
             fontsize=7.5, fontfamily=FONT, color=INK, parse_math=False, gid="caption")
-    ax.text(12, 8, CAUTION, transform=to_pt, ha="left", va="baseline", fontsize=7,
-            fontfamily=FONT, fontstyle="italic", color=SLATE, alpha=0.85, parse_math=False,
-            gid="caution")
+    for k, line in enumerate(caution):
+        ax.text(12, 8 + 9 * (len(caution) - 1 - k), line, transform=to_pt, ha="left",
+                va="baseline", fontsize=7, fontfamily=FONT, fontstyle="italic", color=SLATE,
+                alpha=0.85, parse_math=False, gid="caution" if k == 0 else f"caution-{k}")
+
+
+def _legend_glyph(ax, to_pt, entry, x, y, lw):
+    """The small drawing of one legend entry, 20 points wide, centred on ``y``."""
+    seg = np.array([[x, y], [x + 20, y]])
+    if entry == "forbidden":
+        ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE, alpha=0.5,
+                           linewidth=lw, linestyle=(0, (1, 2)), gid="legend-forbidden"))
+        ax.add_line(Line2D([x + 7, x + 13, np.nan, x + 7, x + 13],
+                           [y - 3, y + 3, np.nan, y + 3, y - 3], transform=to_pt,
+                           color=SLATE, alpha=0.6, linewidth=lw))
+    elif entry == "locked":
+        ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE, linewidth=lw))
+        ax.add_line(Line2D([x + 8.5, x + 8.5, np.nan, x + 11.5, x + 11.5],
+                           [y - 4, y + 4, np.nan, y - 4, y + 4], transform=to_pt,
+                           color=TEAL, linewidth=1.6, solid_capstyle="butt",
+                           gid="legend-locked"))
+    elif entry == "stages":
+        ax.add_patch(FancyBboxPatch((x, y - 5), 20, 10, transform=to_pt,
+                                    boxstyle=BoxStyle("Round", pad=0.0, rounding_size=3),
+                                    facecolor=STAGE_FILL, edgecolor="none",
+                                    gid="legend-stages"))
+    elif entry == "contested":
+        ax.add_line(Line2D([x, x + 6, np.nan, x + 14, x + 20], [y, y, np.nan, y, y],
+                           transform=to_pt, color=BRICK, linewidth=lw, linestyle="--",
+                           dashes=(3, 1.5), gid="legend-contested"))
+        ax.text(x + 10, y, "?", transform=to_pt, ha="center", va="center_baseline",
+                fontsize=7, fontfamily=FONT, fontweight="bold", color=BRICK)
+    elif entry == "untestable":
+        ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE, linewidth=lw,
+                           gid="legend-untestable"))
+        ax.add_patch(FancyBboxPatch((x + 4, y - 3.5), 12, 7, transform=to_pt,
+                                    boxstyle=BoxStyle("Round", pad=0.0, rounding_size=3),
+                                    facecolor="#FFFFFF", edgecolor=SLATE, linewidth=0.7))
+    else:
+        end = x + (15 if entry == "directed" else 20)
+        ax.add_line(Line2D([x, end], [y, y], transform=to_pt, color=SLATE, linewidth=lw,
+                           gid=f"legend-{entry}"))
+        if entry == "directed":
+            ax.add_patch(Polygon([[x + 20, y], [x + 15, y + 2.2], [x + 15, y - 2.2]],
+                                 closed=True, transform=to_pt, facecolor=SLATE,
+                                 edgecolor=SLATE, linewidth=lw))
 
 
 def _save(fig, path, fmt):

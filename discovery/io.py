@@ -4,9 +4,12 @@ Exports
 -------
 :func:`write_dot` writes Graphviz DOT, an open text format that Graphviz and many editors
 draw. Every edge is written ``a -> b``: a directed edge plainly, an undirected edge with
-``dir=none``, a contested edge with open heads at both ends, dashed and brick red. Edgewise's
-own attributes (``kind``, ``reason``, ``reason_kind``, ``max_pvalue``, ``tests``, ``locked``)
-ride along; Graphviz ignores attributes it does not know.
+``dir=none``, a contested edge with no heads, dashed and brick red with a "?" label in its
+middle (never heads at both ends, which the field reads as a bidirected edge: a hidden common
+cause). Every edge also says its end marks (``from_mark``, ``to_mark``: ``tail``, ``arrow`` or
+``circle``). Edgewise's own attributes (``kind``, ``reason``, ``reason_kind``, ``max_pvalue``,
+``tests``, ``locked``, ``untestable``) ride along; Graphviz ignores attributes it does not
+know.
 
 :func:`write_graphml` writes GraphML, the XML graph format of the GraphML working group. The
 graph is directed and every adjacency is *one* edge: its ``kind`` attribute says whether it
@@ -100,8 +103,8 @@ def _dot_attrs(attrs: dict) -> str:
 _DOT_STYLE = {
     "directed": {"arrowhead": "normal"},
     "undirected": {"dir": "none"},
-    "contested": {"dir": "both", "arrowhead": "empty", "arrowtail": "empty",
-                  "style": "dashed", "color": BRICK},
+    "contested": {"dir": "none", "style": "dashed", "color": BRICK, "label": "?",
+                  "fontcolor": BRICK, "fontname": "DejaVu Sans Bold"},
 }
 
 
@@ -119,8 +122,9 @@ def write_dot(result: SearchResult, path=None) -> str:
         A ``digraph``: one node per variable (``label`` is the exact name), stages as
         ``cluster_stage_<k>`` subgraphs, one ``a -> b`` line per edge with ``kind``,
         ``reason``, ``reason_kind``, ``max_pvalue`` (left out when no test ran), ``tests``
-        and ``locked``. Undirected edges have ``dir=none``; contested edges ``dir=both,
-        arrowhead=empty, arrowtail=empty, style=dashed, color="#B5482F"``.
+        ``locked``, ``from_mark`` / ``to_mark`` and, for an untestable pair, ``untestable``
+        (the reason). Undirected edges have ``dir=none``; contested edges ``dir=none,
+        style=dashed, color="#B5482F", label="?"`` (no heads: see the module docstring).
 
     Raises
     ------
@@ -166,8 +170,11 @@ def write_dot(result: SearchResult, path=None) -> str:
         attrs.update(from_mark=e.from_mark, to_mark=e.to_mark)  # the ends, for any reader
         if not math.isnan(e.max_pvalue):
             attrs["max_pvalue"] = float(e.max_pvalue)
-        attrs.update(tests=int(e.tests), locked=bool(e.locked),
+        attrs.update(tests=int(e.tests), locked=bool(e.locked), from_mark=e.from_mark,
+                     to_mark=e.to_mark,
                      tooltip=e.arrow() + (f": {e.reason}" if e.reason else ""))
+        if e.untestable:
+            attrs["untestable"] = e.untestable
         lines.append(f"  {_dot_id(e.source)} -> {_dot_id(e.target)} {_dot_attrs(attrs)};")
     lines.append("}")
     text = "\n".join(lines) + "\n"
@@ -194,7 +201,10 @@ _GRAPH_KEYS = [("g_format", "graph", "format", "string"),
                ("e_reason_kind", "edge", "reason_kind", "string"),
                ("e_max_pvalue", "edge", "max_pvalue", "double"),
                ("e_tests", "edge", "tests", "int"),
-               ("e_locked", "edge", "locked", "boolean")]
+               ("e_locked", "edge", "locked", "boolean"),
+               ("e_from_mark", "edge", "from_mark", "string"),
+               ("e_to_mark", "edge", "to_mark", "string"),
+               ("e_untestable", "edge", "untestable", "string")]
 
 
 def write_graphml(result: SearchResult, path=None) -> str:
@@ -203,7 +213,9 @@ def write_graphml(result: SearchResult, path=None) -> str:
     The graph is directed and holds one edge per adjacency, whatever its kind, so that the
     file reads back edge for edge. Edge data: ``kind`` (directed, undirected, contested),
     ``reason``, ``reason_kind``, ``max_pvalue`` (double; left out when no test ran, since
-    GraphML has no portable NaN), ``tests`` (int) and ``locked`` (boolean). Node data:
+    GraphML has no portable NaN), ``tests`` (int), ``locked`` (boolean), ``from_mark`` and
+    ``to_mark`` (``tail``, ``arrow`` or ``circle``) and ``untestable`` (the reason, only for
+    a pair whose test returned no p-value). Node data:
     ``label`` (the name) and ``stage`` (1-based, only for variables in a stage). Graph data:
     ``format`` (``edgewise-graph``), ``test``, ``alpha``, ``rows`` (when known), ``knowledge``
     (the knowledge as JSON text) and ``caution``.
@@ -272,6 +284,9 @@ def write_graphml(result: SearchResult, path=None) -> str:
         data(edge, "e_max_pvalue", float(e.max_pvalue))
         data(edge, "e_tests", int(e.tests))
         data(edge, "e_locked", bool(e.locked))
+        data(edge, "e_from_mark", e.from_mark)
+        data(edge, "e_to_mark", e.to_mark)
+        data(edge, "e_untestable", e.untestable or None)
     ET.indent(root, space="  ")
     text = ("<?xml version='1.0' encoding='utf-8'?>\n"
             + ET.tostring(root, encoding="unicode") + "\n")

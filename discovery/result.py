@@ -13,6 +13,7 @@ docs/result-format.md; :func:`SearchResult.from_dict` validates it on load.
 from __future__ import annotations
 
 import json
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -32,6 +33,9 @@ __all__ = ["Edge", "Removal", "TestLog", "TestRecord", "PairEvidence", "SearchRe
 FORMAT = "edgewise-result"
 VERSION = 1
 EDGE_KINDS = ("directed", "undirected", "contested")
+
+#: The reason given for an untestable pair when the test gives none of its own.
+NO_PVALUE = "the test returned no p-value"
 
 #: The assumptions and cautions every output carries (DESIGN.md §2), in plain words.
 ASSUMPTIONS = (
@@ -206,6 +210,12 @@ class Edge:
         Number of tests run on this pair.
     locked : bool
         The pair is locked by knowledge (kept whatever the data say).
+    untestable : str
+        Why the data could not settle this pair ("" when they could): at least one of its
+        tests returned no p-value (NaN). Such a test never counts as evidence either way,
+        so the edge is kept because nothing removed it, not because the data showed a
+        dependence. The text comes from the test (e.g. "too few rows to test given {z}"),
+        or is "the test returned no p-value".
     """
 
     source: str
@@ -216,6 +226,7 @@ class Edge:
     max_pvalue: float = float("nan")
     tests: int = 0
     locked: bool = False
+    untestable: str = ""
 
     @property
     def pair(self) -> frozenset[str]:
@@ -233,7 +244,12 @@ class Edge:
         return "arrow" if self.kind == "directed" else "tail"
 
     def arrow(self) -> str:
-        mark = {"directed": "→", "undirected": "—", "contested": "↔"}[self.kind]
+        """The edge as text: ``a → b``, ``a — b``, or ``a ?– b (contested)`` (a contested pair
+        has no heads: "?" says the data tried to orient it both ways; never ``↔``, which
+        reads as a hidden common cause)."""
+        if self.kind == "contested":
+            return f"{self.source} ?– {self.target} (contested)"
+        mark = {"directed": "→", "undirected": "—"}[self.kind]
         return f"{self.source} {mark} {self.target}"
 
     def to_dict(self) -> dict:
@@ -241,7 +257,8 @@ class Edge:
                 "from_mark": self.from_mark, "to_mark": self.to_mark,
                 "reason": self.reason, "reason_kind": self.reason_kind,
                 "max_pvalue": _num(self.max_pvalue), "tests": self.tests,
-                "locked": self.locked}
+                "locked": self.locked, "untestable": bool(self.untestable),
+                "untestable_reason": self.untestable}
 
 
 class Removal(NamedTuple):
@@ -280,10 +297,25 @@ class PairEvidence:
     tests: tuple[TestRecord, ...]
     triples: tuple[Mapping, ...]
 
+    @property
+    def untestable(self) -> str:
+        """Why the data could not settle this pair ("" when they could)."""
+        return self.edge.untestable if self.edge is not None else ""
+
     def as_text(self) -> str:
-        lines = [f"{self.a} — {self.b}: " + (self.edge.arrow() if self.edge else "not adjacent")]
+        """The pair's evidence as the window's Inspector shows it: the edge (or its absence),
+        why each arrowhead is there, what removed it, the triples through it, every test."""
+        lines = [f"Pair {self.a}, {self.b}: " + (f"edge {self.edge.arrow()}" if self.edge
+                                                  else "not adjacent")]
+        if self.edge and self.edge.locked:
+            lines.append("  locked by knowledge: kept whatever the data say")
+        if self.edge and self.edge.untestable:
+            lines.append(f"  untestable: {self.edge.untestable}; a test without a p-value "
+                         f"counts neither for nor against the edge, which is kept and marked")
         if self.edge and self.edge.reason:
             lines.append(f"  orientation: {self.edge.reason}")
+        elif self.edge and self.edge.kind == "undirected":
+            lines.append("  orientation: not determined by the data")
         if self.removal:
             if self.removal.by == "test":
                 lines.append(f"  removed: independent given "
@@ -294,8 +326,15 @@ class PairEvidence:
             else:
                 lines.append("  removed: forbidden by knowledge (the data gave no separating "
                              "set)")
+        for t in self.triples:
+            reason = t.get("reason", "")
+            lines.append(f"  triple {t.get('x')} — {t.get('z')} — {t.get('y')}: "
+                         f"{t.get('decision', '')}" + (f" ({reason})" if reason else ""))
+        if not self.tests:
+            lines.append("  no test was run on this pair")
         for t in self.tests:
-            lines.append(f"  test given {_set_text(t.given)}: p = {t.pvalue:.4g}")
+            p = "no p-value (untestable)" if t.pvalue != t.pvalue else f"p = {t.pvalue:.4g}"
+            lines.append(f"  test given {_set_text(t.given)}: {p}")
         return "\n".join(lines)
 
     def _repr_html_(self) -> str:
@@ -538,9 +577,13 @@ def _from_dict(doc, source) -> SearchResult:
                 fail(f"edge kind {e['kind']!r} is not one of {EDGE_KINDS}")
             if not all(isinstance(e.get(k, ""), str) for k in ("reason", "reason_kind")):
                 fail(f"edge {e['from']!r} — {e['to']!r}: 'reason' must be text")
+            untestable = str(e.get("untestable_reason") or "")
+            if e.get("untestable") and not untestable:
+                untestable = NO_PVALUE
             edges.append(Edge(e["from"], e["to"], e["kind"], e.get("reason", ""),
                               e.get("reason_kind", ""), _float(e.get("max_pvalue")),
-                              int(e.get("tests", 0)), bool(e.get("locked", False))))
+                              int(e.get("tests", 0)), bool(e.get("locked", False)),
+                              untestable))
         pairs = [frozenset((e.source, e.target)) for e in edges]
         if len(set(pairs)) != len(pairs):
             fail("two edges join the same pair")
@@ -624,6 +667,39 @@ def _float(x) -> float:
     return float("nan") if x is None else float(x)
 
 
+_AUTO_GROUP = re.compile(r"^auto: (.*) tested by (.+?) \((.*)\)$")
+
+
+def _summarise_auto(notes: list[str]) -> list[str]:
+    """Fold ``auto``'s one-line-per-group notes (which pairs each test decided) into one line
+    of counts per test and reason, placed where the first of them was; the result's JSON
+    keeps the full list."""
+    per_test: dict[str, int] = {}
+    reasons: dict[str, str] = {}
+    out, at = [], None
+    for note in notes:
+        found = _AUTO_GROUP.match(note)
+        if not found:
+            out.append(note)
+            continue
+        pairs = found.group(1).count(" — ")
+        for part in found.group(3).split("; "):
+            name, _, why = part.partition(": ")
+            reasons.setdefault(name, why)
+        key = found.group(2)
+        per_test[key] = per_test.get(key, 0) + pairs
+        if at is None:
+            at = len(out)
+            out.append("")
+    if at is not None:
+        parts = [f"{count} by {key}" for key, count in
+                 sorted(per_test.items(), key=lambda kv: -kv[1])]
+        why = "; ".join(f"{name}: {text}" for name, text in reasons.items())
+        out[at] = (f"auto: pairs tested {', '.join(parts)} ({why}); the pair-by-pair list is in "
+                   f"the result's JSON (notes)")
+    return out
+
+
 class Summary:
     """A readable summary of a result: ``as_text()``, ``as_html()``, ``to_dict()``."""
 
@@ -645,12 +721,38 @@ class Summary:
         }
 
     def notes(self) -> list[str]:
+        """Conflicts and notes, each once, in order; then a line on untestable pairs."""
         r = self.result
-        notes = list(r.conflicts) + list(r.notes)
+        notes = _summarise_auto(list(dict.fromkeys(list(r.conflicts) + list(r.notes))))
         nan_tests = r.tests.count_nan()
         if nan_tests:
-            notes.append(f"{nan_tests} test(s) returned NaN and were read as 'not independent'")
+            shown = [e for e in r.edges if e.untestable]
+            pairs = ", ".join(f"{e.source} — {e.target}" for e in shown[:6]) + \
+                (", ..." if len(shown) > 6 else "")
+            notes.append(f"{nan_tests} test(s) returned no p-value; they count neither for nor "
+                         f"against an edge" + (f"; {len(shown)} edge(s) kept untestable: {pairs}"
+                                               if shown else ""))
         return notes
+
+    def isolated(self) -> list[str]:
+        """Variables with no edge, in the result's order."""
+        touched = {v for e in self.result.edges for v in (e.source, e.target)}
+        return [v for v in self.result.variables if v not in touched]
+
+    def counts_line(self) -> str:
+        """How many tests ran, and how many of those same tests came from the cache."""
+        c = self.result.counts
+        tests = c.get("tests", len(self.result.tests))
+        line = f"{tests} tests"
+        if "tests_from_cache" in c:
+            line += (f" ({c.get('tests_computed', 0)} computed, {c.get('tests_from_cache', 0)} "
+                     f"from the cache)")
+        extra = c.get("collider_tests_computed", 0) + c.get("collider_tests_from_cache", 0)
+        if extra:
+            line += (f"; {extra} more to gather separating sets for the "
+                     f"{self.result.settings.collider_rule} collider rule "
+                     f"({c.get('collider_tests_from_cache', 0)} from the cache)")
+        return line
 
     def as_text(self, *, assumptions: bool = True) -> str:
         """The summary as plain text; ``assumptions=False`` leaves out the closing paragraph
@@ -664,22 +766,58 @@ class Summary:
                 f"collider rule {r.settings.collider_rule}")
         lines = [head,
                  f"{len(r.edges)} edges: {c.get('directed', 0)} directed, "
-                 f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested; "
-                 f"{c.get('tests', len(r.tests))} tests", ""]
+                 f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested"
+                 + (f", {c.get('untestable', 0)} untestable" if c.get("untestable") else "")
+                 + f"; {self.counts_line()}", ""]
         width = max([len(e.arrow()) for e in r.edges] + [4])
         lines.append(f"{'edge':<{width}}  {'max p':>9}  why")
         for e in r.edges:
             p = "-" if e.max_pvalue != e.max_pvalue else f"{e.max_pvalue:.3g}"
             why = e.reason or "direction not determined by the data"
+            if e.untestable:
+                why = f"untestable ({e.untestable}); " + why
             if e.locked:
                 why = "locked; " + why
             lines.append(f"{e.arrow():<{width}}  {p:>9}  {why}")
+        if not r.edges:
+            lines.append("(no edges)")
+        lines += self.legend_lines()
+        alone = self.isolated()
+        if alone:
+            lines += ["", f"Isolated (no edge): {', '.join(alone)}"]
         notes = self.notes()
         if notes:
             lines += ["", "Notes:"] + [f"[{i}] {n}" for i, n in enumerate(notes, 1)]
         if assumptions:
             lines += ["", "Assumptions: " + " ".join(ASSUMPTIONS)]
         return "\n".join(lines)
+
+    def legend_lines(self) -> list[str]:
+        """One line per term of the table: "max p", then each reason word that appears."""
+        r = self.result
+        lines = ["", "max p: the largest p-value of the pair's tests, the closest the data came "
+                     "to removing the edge (kept while every test gives p <= alpha "
+                     f"{r.settings.alpha:g})."]
+        kinds = {e.reason_kind for e in r.edges}
+        explain = [
+            ("collider", "collider" in kinds,
+             "collider: two non-adjacent causes both point into it (the middle variable is not "
+             "in their separating set)."),
+            ("rule", any(k.startswith("rule") for k in kinds),
+             "rule 1-4: forced by Meek's rules so that no new collider or cycle appears."),
+            ("knowledge", "knowledge" in kinds or any(e.locked for e in r.edges),
+             "knowledge / locked: set by the knowledge file, not by the data."),
+            ("stage order", "stage order" in kinds,
+             "stage order: a later stage cannot cause an earlier one."),
+            ("contested", "contested" in kinds,
+             "contested (?–): colliders tried to orient the pair both ways; left open."),
+            ("untestable", any(e.untestable for e in r.edges),
+             "untestable: a test returned no p-value; the edge is kept, not confirmed."),
+            ("not determined", any(not e.reason for e in r.edges),
+             "direction not determined by the data: either way fits (same equivalence "
+             "class)."),
+        ]
+        return lines + [text for _, shown, text in explain if shown]
 
     def as_html(self) -> str:
         from html import escape
@@ -690,9 +828,13 @@ class Summary:
             for e in r.edges)
         notes = "".join(f"<li>{escape(n)}</li>" for n in self.notes())
         assumptions = "".join(f"<li>{escape(a)}</li>" for a in ASSUMPTIONS)
+        words = "".join(f"<br>{escape(w)}" for w in self.legend_lines() if w)
+        alone = self.isolated()
         return (f"<p>{len(r.variables)} variables; test {escape(r.settings.test)}, "
                 f"α = {r.settings.alpha:g}</p><table><tr><th>edge</th><th>max p</th>"
                 f"<th>why</th></tr>{rows}</table>"
+                + (f"<p><small>{words[4:]}</small></p>" if words else "")
+                + (f"<p>Isolated (no edge): {escape(', '.join(alone))}</p>" if alone else "")
                 + (f"<ol>{notes}</ol>" if notes else "")
                 + f"<p>Assumptions and cautions:</p><ul>{assumptions}</ul>")
 

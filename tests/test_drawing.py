@@ -99,15 +99,27 @@ def test_import_and_drawing_never_touch_pyplot(tmp_path):
 
 # ---------------------------------------------------------------------- visual language
 
-def test_contested_edge_is_dashed_brick_with_open_heads(result):
-    art = by_gid(draw_result(result))
+def test_contested_edge_is_dashed_brick_with_a_question_badge_and_no_heads(result):
+    # Heads at both ends are the field's notation for a bidirected edge (a hidden common
+    # cause; Richardson & Spirtes 2002, ancestral graphs, from memory): a contested pair must
+    # not look like that.
+    fig = draw_result(result)
+    fig.canvas.draw()
+    art = by_gid(fig)
     i = edge_index(result, "cancer", "cough")
     line = art[f"edge-{i}"]
     assert line.get_linestyle() == "--"
     assert mcolors.same_color(line.get_color(), BRICK)
-    for end in ("target", "source"):
-        head = art[f"head-{i}-{end}"]
-        assert not head.get_fill() and mcolors.same_color(head.get_edgecolor(), BRICK)
+    assert f"head-{i}-target" not in art and f"head-{i}-source" not in art
+    assert art[f"contested-{i}-text"].get_text() == "?"
+    # the line is broken where the badge sits: no drawn point inside the badge
+    badge = art[f"contested-{i}"]
+    xs, ys = line.get_xdata(), line.get_ydata()
+    to_px = fig.axes[0].transData.transform
+    assert np.isnan(xs).any()  # two pieces
+    assert not any(badge.contains_point(to_px((x, y))) for x, y in zip(xs, ys)
+                   if not np.isnan(x))
+    assert "legend-contested" in art
 
 
 def test_directed_edges_have_filled_heads_ending_at_the_box_border(result):
@@ -290,3 +302,72 @@ def test_three_hundred_nodes(tmp_path):
     assert_no_overlap(pos)
     draw_result(r, tmp_path / "g.png", positions=pos)
     assert (tmp_path / "g.png").stat().st_size > 0
+
+
+# ------------------------------------------------------------- caution, legend, locked bar
+
+@pytest.mark.parametrize("width_in", [3.0, 4.5, 6.0])
+def test_whole_caution_fits_narrow_figures(result, width_in):
+    # A narrow axes: every caution line must end inside the figure, and together the lines
+    # hold the whole caution, word for word.
+    from discovery.io import CAUTION
+    fig = Figure(figsize=(width_in, 4.0))
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    FigureCanvasAgg(fig)
+    ax = fig.add_axes((0, 0, 1, 1))
+    draw_result(result, ax=ax)
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    lines = [a for g, a in sorted(by_gid(fig).items()) if g == "caution"
+             or g.startswith("caution-")]
+    assert len(lines) >= 2
+    text = " ".join(a.get_text() for a in sorted(lines, key=lambda a: -a.get_position()[1]))
+    assert text.split() == (CAUTION + ".").split()
+    fig_box = fig.bbox
+    for a in lines:
+        box = a.get_window_extent(renderer)
+        assert box.x0 >= fig_box.x0 and box.x1 <= fig_box.x1, (a.get_text(), box, fig_box)
+
+
+def test_legend_has_an_entry_for_every_mark_drawn(result):
+    edges = list(result.edges)
+    edges[0] = dataclasses.replace(edges[0], untestable="the test returned no p-value")
+    r = dataclasses.replace(result, edges=tuple(edges),
+                            knowledge=Knowledge(locked=[("age", "blood pressure")],
+                                                forbidden=[("genes", "age")],
+                                                stages=[["genes", "smoking"], ["tar"]]))
+    art = by_gid(draw_result(r))
+    drawn = {g.split("-")[0] for g in art if g.split("-")[0] in (
+        "locked", "forbidden", "band", "contested", "untestable")}
+    drawn |= {e.kind for e in r.edges}
+    legend = {g[len("legend-"):] for g in art if g.startswith("legend-")
+              and not g.endswith("-label")}
+    expected = {"locked": "locked", "forbidden": "forbidden", "band": "stages",
+                "contested": "contested", "untestable": "untestable", "directed": "directed",
+                "undirected": "undirected"}
+    assert {expected[d] for d in drawn} <= legend
+    assert art["untestable-0-text"].get_text() == "no p"
+
+
+def test_locked_bar_sits_away_from_crossings():
+    # Two long edges crossing at their middles; the locked one's bar must not sit on the
+    # crossing (common practice, no source: a mark on a crossing is ambiguous).
+    names = ["a", "b", "c", "d"]
+    edges = (Edge("a", "b", "undirected", locked=True), Edge("c", "d", "undirected"))
+    r = SearchResult(variables=tuple(names), settings=SearchSettings(), knowledge=Knowledge(
+        locked=[("a", "b")]), edges=edges, removed=(), tests=())
+    positions = {"a": (0.0, 0.0), "b": (6.0, 6.0), "c": (0.0, 6.0), "d": (6.0, 0.0)}
+    art = by_gid(draw_result(r, positions=positions))
+    bar = art["locked-0"]
+    xs, ys = np.asarray(bar.get_xdata(), float), np.asarray(bar.get_ydata(), float)
+    centre = np.array([np.nanmean(xs), np.nanmean(ys)])
+    other = art["edge-1"]
+    pts = np.column_stack([other.get_xdata(), other.get_ydata()])
+    # distance from the bar's centre to the other edge's straight line, against the drawn
+    # length of the locked edge (the middle, where they cross, would give 0)
+    p, q = pts[0], pts[-1]
+    u, v = q - p, centre - p
+    d = abs(u[0] * v[1] - u[1] * v[0]) / np.hypot(*u)
+    own = art["edge-0"]
+    length = np.hypot(np.ptp(own.get_xdata()), np.ptp(own.get_ydata()))
+    assert d > 0.15 * length

@@ -159,9 +159,14 @@ def test_dot_structure_matches_the_result(contested):
     # Graphviz attributes (graphviz.org/doc/info/attrs.html): dir, arrowhead, arrowtail.
     assert by_pair[("a", "c")].get("dir") is None and by_pair[("a", "c")]["arrowhead"] == "normal"
     assert by_pair[("x", "y")]["dir"] == "none"
+    # The contested mark is our own: no heads (heads at both ends read as bidirected, a
+    # hidden common cause, in the field's notation), dashed brick red, a "?" in the middle.
     c = by_pair[("d", "e")]
-    assert (c["dir"], c["arrowhead"], c["arrowtail"], c["style"], c["color"]) == \
-        ("both", "empty", "empty", "dashed", "#B5482F")
+    assert (c["dir"], c["style"], c["color"], esc_string(c["label"])) == \
+        ("none", "dashed", "#B5482F", "?")
+    assert "arrowhead" not in c and "arrowtail" not in c
+    assert (c["from_mark"], c["to_mark"]) == ("tail", "tail")
+    assert (by_pair[("a", "c")]["from_mark"], by_pair[("a", "c")]["to_mark"]) == ("tail", "arrow")
     assert "dir" not in by_pair[("c", "d")]
     assert clusters == {"cluster_stage_1": ["a", "b"], "cluster_stage_2": ["c"]}
     assert "α 0.05" in graph["label"]

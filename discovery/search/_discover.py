@@ -83,8 +83,10 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
 
     Notes
     -----
-    A NaN p-value (a test that could not be computed) never separates a pair: the edge stays
-    and the summary counts such tests.
+    A NaN p-value (a test that could not be computed) never counts as evidence either way:
+    it does not separate the pair, nor does it show a dependence. A pair with such a test is
+    **untestable**: its edge stays and is marked (:attr:`Edge.untestable`, with the test's
+    reason when it offers ``untestable_reason(x, y, given)``), and the summary lists it.
 
     Examples
     --------
@@ -150,9 +152,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # From here on, variable indices follow the order of the names: enumeration and every
     # choice the search makes are then independent of the data's column order.
     names = tuple(test_obj.variables)
+    notes: list[str] = []
+    if dataset is not None:
+        knowledge = _knowledge_within(knowledge, dataset, notes)
     knowledge.check_variables(names)
     index = {v: i for i, v in enumerate(names)}
-    notes: list[str] = []
     depth = max_depth
     if test_obj.n is not None and test_name == "fisher-z":
         cap = test_obj.n - 4
@@ -193,6 +197,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                     may_separate=lambda pairs: test_obj.may_separate(
                                         pairs, settings.alpha))
         t1 = time.perf_counter()
+        hits1, misses1 = cache.hits, cache.misses  # the skeleton's tests: those in the log
         separating_sets_of = None
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
@@ -214,7 +219,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         notes.append(f"{len(skeleton.unseparated_forbidden)} forbidden pair(s) had no "
                      "separating set in the data; triples through them were left undecided")
     return _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes,
-                         dataset, test_obj, cache, hits0, misses0,
+                         dataset, test_obj, cache, (hits0, misses0, hits1, misses1),
                          timings={"data_s": t_data - started,
                                   "test_setup_s": t0 - t_data,
                                   "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
@@ -232,6 +237,25 @@ def _as_dataset(data, *, columns, missing):
         return prepare_frame(data, columns=columns, missing=missing)
     raise DataValidationError(f"data must be a pandas DataFrame or a Dataset; got "
                               f"{type(data).__name__} (read files with discovery.read_table)")
+
+
+def _knowledge_within(knowledge: Knowledge, dataset, notes: list) -> Knowledge:
+    """Drop (with a note) the knowledge about columns that are in the data but not searched
+    (not selected, excluded, constant...); a name absent from the data stays an error."""
+    outside = sorted((knowledge.variables & set(dataset.kinds)) - set(dataset.variables))
+    if not outside:
+        return knowledge
+    keep = set(dataset.variables) | (knowledge.variables - set(dataset.kinds))
+    fields = ("locked", "locked_directions", "forbidden", "forbidden_directions")
+    pairs = {f: tuple(p for p in getattr(knowledge, f) if set(p) <= keep) for f in fields}
+    dropped = sum(len(getattr(knowledge, f)) - len(pairs[f]) for f in fields)
+    stages = tuple(tuple(v for v in g if v in keep) for g in knowledge.stages)
+    why = "; ".join(f"{v!r} {dataset.excluded.get(v, 'not used')}" for v in outside[:6])
+    notes.append(f"knowledge about {', '.join(repr(v) for v in outside)}, which "
+                 f"{'is' if len(outside) == 1 else 'are'} in the data but not in the search "
+                 f"({why}), was dropped: {dropped} pair statement(s) and "
+                 f"{'its' if len(outside) == 1 else 'their'} place in the stages")
+    return Knowledge(**pairs, stages=tuple(g for g in stages if g))
 
 
 def _cancel_check(cancel):
@@ -272,6 +296,34 @@ def _separating_sets_finder(adjacent, pvalues, alpha, depth, cancelled):
     return find
 
 
+def _untestable_pairs(names, log, log_p, test) -> dict:
+    """``{(x, y): reason}`` for every pair with a test that returned no p-value (NaN).
+
+    The reason is the test's own (``test.untestable_reason(x, y, given)`` with variable
+    names, an optional hook that returns a short text or None), else
+    :data:`~discovery.result.NO_PVALUE`. The first such test of the pair is described.
+    """
+    from ..result import NO_PVALUE
+    if not len(log_p) or not np.isnan(log_p).any():
+        return {}
+    hook = getattr(test, "untestable_reason", None)
+    first = {}
+    for idx, p in log:
+        for r in np.flatnonzero(np.isnan(p)).tolist():
+            row = idx[r].tolist()
+            first.setdefault((row[0], row[1]), (row[0], row[1], tuple(row[2:])))
+    out = {}
+    for key, (x, y, given) in first.items():
+        text = None
+        if hook is not None:
+            try:
+                text = hook(names[x], names[y], tuple(names[s] for s in given))
+            except Exception:  # a hook that fails must not lose the search's result
+                text = None
+        out[key] = str(text) if text else NO_PVALUE
+    return out
+
+
 def _software() -> dict:
     import networkx
     import pandas
@@ -283,9 +335,10 @@ def _software() -> dict:
 
 
 def _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes, dataset,
-                  test_obj, cache, hits0, misses0, timings) -> SearchResult:
+                  test_obj, cache, tallies, timings) -> SearchResult:
     key = rank.__getitem__
     index = {v: i for i, v in enumerate(names)}
+    hits0, misses0, hits1, misses1 = tallies
 
     # Indices follow name order, so the log's order (level by level, pair by pair) is already
     # independent of column order and needs no sorting.
@@ -306,6 +359,9 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         max_p = np.full(len(keys), -np.inf)
         finite = ~np.isnan(log_p)
         np.maximum.at(max_p, ids[finite], log_p[finite])
+    untestable = _untestable_pairs(names, skeleton.log, log_p,
+                                   test_obj.inner if isinstance(test_obj, NameOrderedTest)
+                                   else test_obj)
     locked_pairs = knowledge.required_adjacent()
     heads = orientation.heads
     pairs = [(x, y) for x in range(n) for y in skeleton.adjacent[x] if key(x) < key(y)]
@@ -321,17 +377,20 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     edges = []
     for (x, y), count, mp in zip(pairs, tests_run, largest):
         locked = bool(locked_pairs) and frozenset((names[x], names[y])) in locked_pairs
+        why_not = untestable.get((x, y), "")
         hx, hy = (y, x) in heads, (x, y) in heads
         if hx and hy:
             reason = "; ".join(orientation.reason(e)[1] for e in ((x, y), (y, x)))
             edges.append(Edge(names[x], names[y], "contested", reason, "contested", mp,
-                              count, locked))
+                              count, locked, why_not))
         elif hy or hx:
             s, t = (x, y) if hy else (y, x)
             kind, text = orientation.reason((s, t))
-            edges.append(Edge(names[s], names[t], "directed", text, kind, mp, count, locked))
+            edges.append(Edge(names[s], names[t], "directed", text, kind, mp, count, locked,
+                              why_not))
         else:
-            edges.append(Edge(names[x], names[y], "undirected", "", "", mp, count, locked))
+            edges.append(Edge(names[x], names[y], "undirected", "", "", mp, count, locked,
+                              why_not))
     edges.sort(key=lambda e: (e.source, e.target))
     forbidden_idx = {(min(index[a], index[b]), max(index[a], index[b]))
                      for a, b in knowledge.forbidden}
@@ -354,7 +413,13 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     counts = {"edges": len(edges), "directed": kinds.count("directed"),
               "undirected": kinds.count("undirected"), "contested": kinds.count("contested"),
               "removed": len(sepsets) + len(unseparated), "tests": len(tests),
-              "tests_computed": cache.misses - misses0, "tests_from_cache": cache.hits - hits0,
+              # "tests" are the tests in the evidence (the adjacency search); computed + from
+              # the cache count those same tests. The extra tests a conservative or majority
+              # collider rule runs to gather every separating set are counted apart.
+              "tests_computed": misses1 - misses0, "tests_from_cache": hits1 - hits0,
+              "collider_tests_computed": cache.misses - misses1,
+              "collider_tests_from_cache": cache.hits - hits1,
+              "untestable": sum(1 for e in edges if e.untestable),
               "depth_reached": skeleton.depth_reached, "levels": list(skeleton.levels)}
     data = {"rows": getattr(test_obj, "n", None), "columns": len(names)}
     if dataset is not None:
