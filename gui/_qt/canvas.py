@@ -2,9 +2,12 @@
 
 :class:`GraphCanvas` observes the session (result, positions, knowledge, overlay, selection,
 included variables) and sends clicks, drags and context-menu actions back to it. Nodes are
-white rounded rectangles with a slate border and a kind glyph; edges are slate — directed with
-a filled head, undirected without heads, contested dashed brick red with open heads at both
-ends. The knowledge overlay puts a deep-teal double bar across locked edges and shows
+white rounded rectangles with a slate border and a kind glyph; edges are slate and their ends
+are drawn from the edge's marks (``Edge.from_mark`` / ``Edge.to_mark``): an arrow is a filled
+head, a circle a small open ring, a tail nothing — so directed is solid with one filled head,
+undirected has no heads, bidirected (hidden-causes mode) has filled heads at both ends.
+Contested is our own mark: dashed brick red with a small break and a "?" badge in the middle,
+no heads (never open heads at both ends, which the field reads as bidirected). The knowledge overlay puts a deep-teal double bar across locked edges and shows
 forbidden pairs as faint dotted lines with a small cross. Stages are soft bands behind their
 nodes.
 """
@@ -72,113 +75,170 @@ def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: fl
     painter.restore()
 
 
-def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
-              forbidden_heads=(), hover: bool = False, selected: bool = False,
-              scale: float = 1.0, faded: bool = False, control: QPointF | None = None):
-    """Draw one mark from a to b.
+#: The end marks (at a, at b) of each edge kind, for callers that give a kind only. Drawing
+#: always goes by marks, so kinds a later search mode adds draw without a new code path.
+KIND_MARKS = {
+    "directed": ("tail", "arrow"), "undirected": ("tail", "tail"),
+    "contested": ("tail", "tail"), "locked": ("tail", "tail"),
+    "bidirected": ("arrow", "arrow"), "partially-directed": ("circle", "arrow"),
+    "nondirected": ("circle", "circle"), "partially-undirected": ("circle", "tail"),
+}
+RING_R = 4.0
+BADGE_R = 7.0
 
-    ``kind`` is ``directed`` (a → b), ``undirected``, ``contested``, ``forbidden`` (overlay),
-    ``pending-lock`` (a locked pair the current diagram does not have yet) or ``locked``
-    (legend sample: an undirected edge with the lock bar). ``forbidden_heads`` lists the ends
-    ("a" or "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the
-    edge is a quadratic curve through that control point (used to bend around a node).
-    """
-    if control is not None:
-        _draw_curved(painter, a, b, control, kind, locked=locked,
-                     forbidden_heads=forbidden_heads, hover=hover, selected=selected,
-                     scale=scale, faded=faded)
-        return
-    ux, uy, length = _unit(a, b)
-    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+
+def edge_text(edge) -> str:
+    """The edge in words, from its kind and marks: ``a → b``, ``a — b``,
+    ``a ?– b (contested)``, ``a ↔ b (bidirected)``, ``a o→ b`` …"""
+    a, b = edge.source, edge.target
+    if edge.kind == "contested":
+        return f"{a} ?– {b} (contested)"
+    middle = {("tail", "tail"): "—", ("tail", "arrow"): "→", ("arrow", "tail"): "←",
+              ("arrow", "arrow"): "↔", ("circle", "arrow"): "o→", ("arrow", "circle"): "←o",
+              ("circle", "circle"): "o–o", ("circle", "tail"): "o–",
+              ("tail", "circle"): "–o"}[_marks_of(edge)]
+    return f"{a} {middle} {b}" + (" (bidirected)" if middle == "↔" else "")
+
+
+def _marks_of(edge) -> tuple[str, str]:
+    from_mark = getattr(edge, "from_mark", None)
+    to_mark = getattr(edge, "to_mark", None)
+    if from_mark in ("tail", "arrow", "circle") and to_mark in ("tail", "arrow", "circle"):
+        return from_mark, to_mark
+    return KIND_MARKS.get(edge.kind, ("tail", "tail"))
+
+
+def _ring(painter: QPainter, tip: QPointF, ux: float, uy: float, *, color: QColor,
+          scale: float):
+    """A small open ring touching ``tip``, on the line coming along (ux, uy)."""
+    r = RING_R * scale
+    centre = QPointF(tip.x() - ux * r, tip.y() - uy * r)
     painter.save()
-    painter.setRenderHint(QPainter.Antialiasing)
-    if faded:
-        painter.setOpacity(0.45)
-    if kind == "forbidden":
-        painter.setPen(QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap))
-        painter.drawLine(a, b)
-        _cross(painter, QPointF((a.x() + b.x()) / 2, (a.y() + b.y()) / 2), style.FORBIDDEN,
-               scale)
-    elif kind == "pending-lock":
-        painter.setPen(QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap))
-        painter.drawLine(a, b)
-        _double_bar(painter, a, b, scale)
-    else:
-        color = style.CONTESTED if kind == "contested" else style.SLATE
-        if selected:
-            halo = QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine, Qt.RoundCap)
-            painter.setPen(halo)
-            painter.drawLine(a, b)
-        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
-                   Qt.FlatCap)
-        if kind == "contested":
-            pen.setDashPattern([5, 3])
-        painter.setPen(pen)
-        inset_b = ARROW_LEN * scale * 0.8 if kind in ("directed", "contested") else 0
-        inset_a = ARROW_LEN * scale * 0.8 if kind == "contested" else 0
-        painter.drawLine(QPointF(a.x() + ux * inset_a, a.y() + uy * inset_a),
-                         QPointF(b.x() - ux * inset_b, b.y() - uy * inset_b))
-        if kind == "directed":
-            _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
-        elif kind == "contested":
-            _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
-            _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
-        if locked or kind == "locked":
-            _double_bar(painter, a, b, scale)
-    for end in forbidden_heads:
-        tip, sx, sy = (b, -ux, -uy) if end == "b" else (a, ux, uy)
-        at = QPointF(tip.x() + sx * 20 * scale, tip.y() + sy * 20 * scale)
-        _cross(painter, at, style.TEAL, scale, 3.5)
+    painter.setPen(QPen(color, 1.3 * scale))
+    painter.setBrush(style.CANVAS)
+    painter.drawEllipse(centre, r, r)
     painter.restore()
 
 
-def _draw_curved(painter, a, b, c, kind, *, locked, forbidden_heads, hover, selected, scale,
-                 faded):
+def _badge(painter: QPainter, at: QPointF, scale: float):
+    """The contested badge: a "?" in a small ring of brick red at the edge's middle."""
+    r = BADGE_R * scale
+    painter.save()
+    painter.setOpacity(painter.opacity())
+    painter.setPen(QPen(style.CONTESTED, 1.2 * scale))
+    painter.setBrush(style.NODE_FILL)
+    painter.drawEllipse(at, r, r)
+    font = QFont(painter.font())
+    font.setPixelSize(max(6, round(11 * scale)))
+    font.setBold(True)
+    painter.setFont(font)
+    painter.drawText(QRectF(at.x() - r, at.y() - r, 2 * r, 2 * r), Qt.AlignCenter, "?")
+    painter.restore()
+
+
+def _end(painter, mark, tip, ux, uy, *, color, scale):
+    if mark == "arrow":
+        _head(painter, tip, ux, uy, filled=True, color=color, scale=scale)
+    elif mark == "circle":
+        _ring(painter, tip, ux, uy, color=color, scale=scale)
+
+
+def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=None,
+              locked: bool = False, forbidden_heads=(), hover: bool = False,
+              selected: bool = False, scale: float = 1.0, faded: bool = False,
+              control: QPointF | None = None):
+    """Draw one mark from a to b.
+
+    ``kind`` is an edge kind (``directed``, ``undirected``, ``contested``, and the
+    hidden-causes kinds ``bidirected``, ``partially-directed``, ``nondirected``,
+    ``partially-undirected``), ``forbidden`` (overlay), ``pending-lock`` (a locked pair the
+    current diagram does not have yet) or ``locked`` (legend sample: an undirected edge with
+    the lock bar). ``marks`` is the pair of end marks (at a, at b), each ``tail`` (nothing),
+    ``arrow`` (a filled head) or ``circle`` (a small open ring); by default they follow
+    ``kind`` (:data:`KIND_MARKS`). A contested edge is dashed brick red with a small break
+    and a "?" badge in its middle and never has heads (open heads at both ends would read as
+    a bidirected edge, a hidden common cause). ``forbidden_heads`` lists the ends ("a" or
+    "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the edge is
+    a quadratic curve through that control point (used to bend around a node).
+    """
     path = QPainterPath(a)
-    path.quadTo(c, b)
+    if control is None:
+        path.lineTo(b)
+    else:
+        path.quadTo(control, b)
+    if control is None:
+        ua = _unit(b, a)[:2]
+        ub = _unit(a, b)[:2]
+    else:
+        ua = _unit(control, a)[:2]
+        ub = _unit(control, b)[:2]
+    mid = path.pointAtPercent(0.5)
     width = (2.6 if selected else 1.9 if hover else 1.5) * scale
-    color = style.CONTESTED if kind == "contested" else style.SLATE
     painter.save()
     painter.setRenderHint(QPainter.Antialiasing)
     painter.setBrush(Qt.NoBrush)
     if faded:
         painter.setOpacity(0.45)
     if kind == "forbidden":
-        pen = QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap)
+        painter.setPen(QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawPath(path)
+        _cross(painter, mid, style.FORBIDDEN, scale)
     elif kind == "pending-lock":
-        pen = QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap)
+        painter.setPen(QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawPath(path)
+        _double_bar(painter, *_span(path, mid), scale)
     else:
+        contested = kind == "contested"
+        color = style.CONTESTED if contested else style.SLATE
+        end_a, end_b = ("tail", "tail") if contested else (marks or KIND_MARKS.get(
+            kind, ("tail", "tail")))
+        if contested:  # a small break in the middle, where the badge sits
+            length = max(path.length(), 1.0)
+            gap = min(0.3, (BADGE_R + 4) * scale / length)
+            pieces = [_sub_path(path, 0.0, 0.5 - gap), _sub_path(path, 0.5 + gap, 1.0)]
+        else:
+            pieces = [path]
         if selected:
             painter.setPen(QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine,
                                 Qt.RoundCap))
             painter.drawPath(path)
-        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
-                   Qt.FlatCap)
-        if kind == "contested":
+        pen = QPen(color, width, Qt.DashLine if contested else Qt.SolidLine, Qt.FlatCap)
+        if contested:
             pen.setDashPattern([5, 3])
-    painter.setPen(pen)
-    painter.drawPath(path)
-    mid = path.pointAtPercent(0.5)
-    tangent_a, tangent_b = QPointF(c - a), QPointF(b - c)
-    if kind == "directed":
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
-        _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
-    elif kind == "contested":
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
-        _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_a)
-        _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
-    along = QPointF(b - a)
-    span = QPointF(mid.x() - along.x() * 0.05, mid.y() - along.y() * 0.05), \
-        QPointF(mid.x() + along.x() * 0.05, mid.y() + along.y() * 0.05)
-    if kind == "forbidden":
-        _cross(painter, mid, style.FORBIDDEN, scale)
-    if locked or kind in ("locked", "pending-lock"):
-        _double_bar(painter, *span, scale)
+        painter.setPen(pen)
+        for piece in pieces:
+            painter.drawPath(piece)
+        _end(painter, end_a, a, ua[0], ua[1], color=color, scale=scale)
+        _end(painter, end_b, b, ub[0], ub[1], color=color, scale=scale)
+        if contested:
+            _badge(painter, mid, scale)
+        if locked or kind == "locked":
+            _double_bar(painter, *_span(path, mid, 0.12 if contested else 0.0), scale)
     for end in forbidden_heads:
-        t = 0.85 if end == "b" else 0.15
+        t = _percent_at_distance(path, 20 * scale, from_end=end == "b")
         _cross(painter, path.pointAtPercent(t), style.TEAL, scale, 3.5)
     painter.restore()
+
+
+def _sub_path(path: QPainterPath, t0: float, t1: float, steps: int = 24) -> QPainterPath:
+    """The part of ``path`` between percents t0 and t1, as a polyline."""
+    out = QPainterPath(path.pointAtPercent(t0))
+    for i in range(1, steps + 1):
+        out.lineTo(path.pointAtPercent(t0 + (t1 - t0) * i / steps))
+    return out
+
+
+def _span(path: QPainterPath, mid: QPointF, shift: float = 0.0):
+    """A short stretch of the path around its middle (where the lock bar goes), moved by
+    ``shift`` of the length (so that the bar clears the contested badge)."""
+    lo, hi = 0.45 + shift, 0.55 + shift
+    return path.pointAtPercent(lo), path.pointAtPercent(hi)
+
+
+def _percent_at_distance(path: QPainterPath, distance: float, *, from_end: bool) -> float:
+    length = max(path.length(), 1.0)
+    t = min(0.45, distance / length)
+    return 1.0 - t if from_end else t
 
 
 def _crosses_box(p: QPointF, q: QPointF, box: QRectF) -> bool:
@@ -350,6 +410,7 @@ class EdgeItem(QGraphicsItem):
         self.edge = edge
         self.source, self.target = edge.source, edge.target
         self.kind = edge.kind
+        self.marks = _marks_of(edge)
         self.locked = locked
         self.forbidden_heads = tuple(forbidden_heads)
         self.faded = faded
@@ -375,7 +436,7 @@ class EdgeItem(QGraphicsItem):
                     else f"decisive p-value {p:.3g} (largest of {e.tests} tests; "
                          f"kept because below α)")
         why = e.reason or "direction not determined by the data"
-        lines = [e.arrow(), decisive, why]
+        lines = [edge_text(e), decisive, why]
         if self.locked:
             lines.append("locked by knowledge")
         return "\n".join(lines)
@@ -408,7 +469,8 @@ class EdgeItem(QGraphicsItem):
 
     def paint(self, painter: QPainter, option, widget=None):
         overlay = self.canvas.session.overlay
-        draw_edge(painter, self.p1, self.p2, self.kind, locked=self.locked and overlay,
+        draw_edge(painter, self.p1, self.p2, self.kind, marks=self.marks,
+                  locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
                   hover=self.hover, selected=self.selected, faded=self.faded,
                   control=self.control)
@@ -506,17 +568,57 @@ class StageBand(QGraphicsItem):
 # ----------------------------------------------------------------------------- legend
 
 class Legend(QWidget):
-    """A small key of the marks in the canvas corner."""
+    """A small key of the marks in the canvas corner; a click on it folds it to its title
+    (and back).
+
+    The first rows are always there; the marks of the hidden-causes mode (bidirected,
+    circle ends) get a row when the diagram has them (:meth:`set_kinds`).
+    """
 
     ROWS = (("directed", "directed"), ("undirected", "undirected"),
-            ("contested", "contested"), ("locked", "locked (knowledge)"),
+            ("contested", "contested (?)"), ("locked", "locked (knowledge)"),
             ("forbidden", "forbidden (knowledge)"))
+    EXTRA_ROWS = (("bidirected", "bidirected (hidden cause)"),
+                  ("partially-directed", "circle: mark undecided"),
+                  ("nondirected", "circle at both ends"),
+                  ("partially-undirected", "circle and tail"))
+    ROW_H = 18
+    TITLE_H = 20
 
     def __init__(self, parent):
         super().__init__(parent)
         self.setObjectName("canvasLegend")
-        self.setAttribute(Qt.WA_TransparentForMouseEvents)
-        self.setFixedSize(190, 18 * len(self.ROWS) + 12)
+        self.setCursor(Qt.PointingHandCursor)
+        self.collapsed = False
+        self.rows = list(self.ROWS)
+        self._resize()
+
+    def set_kinds(self, kinds) -> None:
+        """Show a row for each extra kind in ``kinds``."""
+        rows = list(self.ROWS) + [r for r in self.EXTRA_ROWS if r[0] in set(kinds)]
+        if rows != self.rows:
+            self.rows = rows
+            self._resize()
+
+    def set_collapsed(self, collapsed: bool) -> None:
+        self.collapsed = bool(collapsed)
+        self._resize()
+
+    def _resize(self):
+        rows = 0 if self.collapsed else len(self.rows)
+        self.setFixedSize(self.collapsed and 70 or 200,
+                          self.TITLE_H + self.ROW_H * rows + (6 if rows else 0))
+        self.setToolTip("Click to unfold the key" if self.collapsed
+                        else "Click to fold the key away")
+        self.update()
+        parent = self.parent()
+        if parent is not None and getattr(parent, "legend", None) is self:
+            parent._place_overlays()
+
+    def mousePressEvent(self, event):
+        if event.button() == Qt.LeftButton:
+            self.set_collapsed(not self.collapsed)
+            event.accept()
 
     def paintEvent(self, event):
         p = QPainter(self)
@@ -527,11 +629,16 @@ class Legend(QWidget):
         font = QFont(self.font())
         font.setPointSizeF(8.5)
         p.setFont(font)
-        for i, (mark, text) in enumerate(self.ROWS):
-            y = 14 + i * 18
-            draw_edge(p, QPointF(10, y), QPointF(52, y), mark, scale=0.8)
+        p.setPen(style.SLATE)
+        p.drawText(QRectF(10, 0, self.width() - 14, self.TITLE_H), Qt.AlignVCenter,
+                   ("▸ Key" if self.collapsed else "▾ Key"))
+        if self.collapsed:
+            return
+        for i, (mark, text) in enumerate(self.rows):
+            y = self.TITLE_H + 6 + i * self.ROW_H
+            draw_edge(p, QPointF(10, y), QPointF(58, y), mark, scale=0.8)
             p.setPen(style.SLATE)
-            p.drawText(QRectF(60, y - 9, 128, 18), Qt.AlignVCenter, text)
+            p.drawText(QRectF(66, y - 9, self.width() - 70, 18), Qt.AlignVCenter, text)
 
 
 # ----------------------------------------------------------------------------- the view
@@ -676,6 +783,7 @@ class GraphCanvas(QGraphicsView):
                             forbidden_heads=self._forbidden_heads(e), faded=s.stale)
             self.scene_.addItem(item)
             self.edges[e.pair] = item
+        self.legend.set_kinds({e.kind for e in s.result.edges})
 
     def _build_overlay(self):
         s = self.session

@@ -85,3 +85,103 @@ def test_png_export_draws_labels_at_its_resolution(qtbot, tmp_path, window):
     assert (x1 - x0) == pytest.approx(ink.width() * scale, rel=0.12)
     assert (y1 - y0) == pytest.approx(ink.height() * scale, rel=0.2)
     assert x1 < inner.right() - 2  # ends before the box does
+
+
+# -- item 14: the contested mark is our own; ends drawn from the marks ------------------------
+
+def _paint(kind, **kw):
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QPainter
+    from gui._qt import style
+    from gui._qt.canvas import draw_edge
+    image = QImage(260, 60, QImage.Format_RGB32)
+    image.fill(style.CANVAS)
+    painter = QPainter(image)
+    draw_edge(painter, QPointF(20, 30), QPointF(240, 30), kind, **kw)
+    painter.end()
+    return image
+
+
+def _colour(image, x, y):
+    c = image.pixelColor(x, y)
+    return c.red(), c.green(), c.blue()
+
+
+def _is_canvas(image, x, y):
+    return _colour(image, x, y) == (0xF7, 0xF6, 0xF3)
+
+
+def test_contested_mark_has_no_heads_a_break_and_a_badge():
+    """DESIGN.md §6: dashed brick red (#B5482F), a small break with a "?" badge in the
+    middle, no heads — open heads at both ends are the field's bidirected edge."""
+    image = _paint("contested")
+    # no head at either end: just off the line, where a head's wings would be, is canvas
+    for x in (23, 26, 234, 237):
+        for dy in (-4, -3, 3, 4):
+            assert _is_canvas(image, x, 30 + dy), (x, dy)
+    # the badge: a ring of brick red around the middle with a "?" inside
+    brick = [(x, y) for x in range(118, 143) for y in range(20, 41)
+             if abs(_colour(image, x, y)[0] - 0xB5) < 40 and _colour(image, x, y)[2] < 110]
+    assert len(brick) > 40
+    assert min(y for _, y in brick) <= 24 and max(y for _, y in brick) >= 36  # taller than a line
+    # the break: on the line, just outside the badge, canvas on both sides
+    assert _is_canvas(image, 130 - 10, 30) or _is_canvas(image, 130 - 11, 30)
+    assert _is_canvas(image, 130 + 10, 30) or _is_canvas(image, 130 + 11, 30)
+    # dashed: gaps along the line away from the middle
+    row = [_is_canvas(image, x, 30) for x in range(30, 100)]
+    assert any(row) and not all(row)
+
+
+@pytest.mark.parametrize("marks, filled_a, filled_b, ring_a, ring_b", [
+    (("tail", "arrow"), False, True, False, False),
+    (("arrow", "arrow"), True, True, False, False),    # bidirected
+    (("circle", "arrow"), False, True, True, False),   # o→
+    (("circle", "circle"), False, False, True, True),  # o–o
+])
+def test_edge_ends_are_drawn_from_the_marks(marks, filled_a, filled_b, ring_a, ring_b):
+    image = _paint("edge", marks=marks)
+    for x_tip, sign, filled, ring in ((20, 1, filled_a, ring_a), (240, -1, filled_b, ring_b)):
+        wing = x_tip + sign * 10  # inside a filled head's triangle, off the line
+        assert (not _is_canvas(image, wing, 33)) == filled, (marks, x_tip)
+        # a ring: hollow centre (canvas) with slate around it
+        centre = x_tip + sign * 4
+        if ring:
+            assert _is_canvas(image, centre, 30)
+            assert not _is_canvas(image, centre, 26) and not _is_canvas(image, centre, 34)
+        else:
+            assert not _is_canvas(image, centre, 30)
+
+
+def test_window_draws_contested_edges_with_our_mark(qtbot, window, tmp_path):
+    from discovery.result import SearchResult
+    from gui_data import collider_frame
+    from gui._qt.canvas import edge_text
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    window.open_path(tmp_path / "c.csv")
+    run_and_wait(qtbot, window)
+    doc = window.session.result.to_dict()
+    first = doc["edges"][0]
+    first.update({"kind": "contested", "reason": "colliders oriented it both ways",
+                  "reason_kind": "contested", "from_mark": "tail", "to_mark": "tail"})
+    window.session.result = SearchResult.from_dict(doc)
+    item = window.canvas.edges[frozenset((first["from"], first["to"]))]
+    assert item.kind == "contested" and item.marks == ("tail", "tail")
+    assert f"{first['from']} ?– {first['to']} (contested)" in item.toolTip()
+    assert "↔" not in item.toolTip()
+    assert edge_text(item.edge) == f"{first['from']} ?– {first['to']} (contested)"
+    # the key has a row for it, drawn the same way
+    assert ("contested", "contested (?)") in window.canvas.legend.rows
+
+
+def test_legend_folds_and_lists_the_marks_drawn(qtbot, window):
+    from PySide6.QtCore import QPoint, Qt
+    legend = window.canvas.legend
+    tall = legend.height()
+    qtbot.mouseClick(legend, Qt.LeftButton, pos=QPoint(10, 8))
+    assert legend.collapsed and legend.height() < tall / 3
+    qtbot.mouseClick(legend, Qt.LeftButton, pos=QPoint(10, 8))
+    assert not legend.collapsed and legend.height() == tall
+    legend.set_kinds({"directed", "bidirected", "partially-directed"})
+    kinds = [k for k, _ in legend.rows]
+    assert "bidirected" in kinds and "partially-directed" in kinds
+    assert "nondirected" not in kinds
