@@ -72,6 +72,7 @@ FIELDS = {
     "progress": None,           # dict | None: phase, level, done, planned, elapsed
     "selection": (),            # () | (node,) | (a, b): a node, or a pair (edge or not)
     "positions": MappingProxyType({}),  # name -> (x, y), node centres in canvas units
+    "layouts": 0,               # counts fresh layouts (the canvas fits the view to each)
     "overlay": True,            # show the knowledge overlay on the canvas
     "session_path": None,       # str | None: where the session was last saved or opened
     "dirty": False,             # changed since last save or open
@@ -257,6 +258,13 @@ class Session:
         # True while the canvas shows the grid of a freshly opened table: the first result
         # then lays the canvas out around its edges (later results keep the layout)
         object.__setattr__(self, "_auto_layout", True)
+        # the layout style Arrange last used ("auto", "layered" or "force")
+        object.__setattr__(self, "layout_style", "auto")
+        # True while the result shown was found on other data than the file now open (a
+        # session whose data file changed): stale whatever the inputs, until a run
+        object.__setattr__(self, "_data_changed", False)
+        #: seconds the last run took, as its log line says (None before any run)
+        object.__setattr__(self, "last_run_seconds", None)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -330,9 +338,19 @@ class Session:
                 tuple(self.included))
 
     def _compute_stale(self) -> bool:
-        if self._values["result"] is None or self._result_key is None:
+        if self._values["result"] is None:
+            return False
+        if self._data_changed:
+            return True
+        if self._result_key is None:
             return False
         return self._result_key != self._inputs_key()
+
+    @property
+    def data_changed(self) -> bool:
+        """Whether the result shown was found on other data than the file now open (its
+        SHA-256 fingerprint differs); stays True until a run on the current data."""
+        return self._data_changed and self.result is not None
 
     @property
     def variables(self) -> tuple[str, ...]:
@@ -377,12 +395,13 @@ class Session:
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_result_key", None)
         object.__setattr__(self, "_auto_layout", True)
+        object.__setattr__(self, "_data_changed", False)
         self.update({
             "data_path": str(Path(path).resolve()), "dataset": dataset,
             "included": dataset.variables, "knowledge": knowledge, "result": None,
             "status": "idle", "progress": None, "selection": (),
             "positions": _layout.arrange(dataset.variables, (), knowledge.stages),
-            "session_path": None,
+            "session_path": None, "layouts": self.layouts + 1,
         })
         self.update({"dirty": False})
         object.__setattr__(self, "_autosaved_generation", self._generation)
@@ -572,14 +591,39 @@ class Session:
         object.__setattr__(self, "_auto_layout", False)
         self._edit({"positions": positions}, label)
 
-    def arrange(self) -> None:
-        """Lay the canvas out afresh: layered by stage when stages exist, else force-directed."""
-        self._edit({"positions": self._arranged()}, "Arrange")
+    def arrange(self, style: str | None = None) -> None:
+        """Lay the canvas out afresh.
+
+        Parameters
+        ----------
+        style : {"auto", "layered", "force"}, optional
+            ``auto``: layered by stage when stages exist, else force-directed; ``layered``:
+            by stage, or by the direction of the arrows when there are no stages. The style
+            is remembered for later layouts (the first diagram of a new run, stage edits).
+            By default the last one used.
+        """
+        if style is not None:
+            if style not in _layout.STYLES:
+                self._error(f"layout must be one of {_layout.STYLES}; got {style!r}",
+                            "Arrange")
+                return
+            object.__setattr__(self, "layout_style", style)
+        label = {"auto": "Arrange", "layered": "Arrange in layers",
+                 "force": "Arrange force-directed"}[self.layout_style]
+        self._edit({"positions": self._arranged()}, label)
+        self._laid_out()
+
+    def _laid_out(self) -> None:
+        """A fresh layout is in place: tell the views (the canvas fits the view to it)."""
+        self.update({"layouts": self.layouts + 1})
 
     def _arranged(self, knowledge: Knowledge | None = None) -> dict:
         knowledge = knowledge or self.knowledge
         edges = [(e.source, e.target) for e in self.result.edges] if self.result else []
-        return _layout.arrange(self.variables, edges, knowledge.stages)
+        directed = ([(e.source, e.target) for e in self.result.edges
+                     if e.kind == "directed"] if self.result else [])
+        return _layout.arrange(self.variables, edges, knowledge.stages,
+                               style=self.layout_style, directed=directed)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]
@@ -587,6 +631,7 @@ class Session:
             return
         if len(missing) == len(self.variables) or not self.positions:
             self.update({"positions": self._arranged()})
+            self._laid_out()
             return
         fresh = self._arranged()
         positions = dict(self.positions)
@@ -609,6 +654,8 @@ class Session:
         self._redo.clear()
         self.update({k: after for k, (_, after) in changes.items()})
         self._sync_history()
+        if rearrange and "positions" in changes:
+            self._laid_out()
 
     def undo(self) -> bool:
         """Undo the last knowledge edit or layout move."""
@@ -699,24 +746,24 @@ class Session:
         object.__setattr__(self, "_result_key",
                            (job.settings, restrict_knowledge(job.knowledge, job.included),
                             tuple(job.included)))
+        object.__setattr__(self, "_data_changed", False)
+        # one measure of the run's time, for the log line and the status bar alike
+        object.__setattr__(self, "last_run_seconds", time.perf_counter() - job.started)
         self.update({"result": result, "status": "done", "progress": None})
         keep = tuple(v for v in self.selection if v in result.variables)
         self.update({"selection": keep if len(keep) == len(self.selection) else ()})
         if self._auto_layout:  # the first diagram replaces the grid of a fresh table
             object.__setattr__(self, "_auto_layout", False)
             positions = job.extras.get("positions")
-            if positions is None or set(positions) != set(self.variables):
+            if (positions is None or set(positions) != set(self.variables)
+                    or self.layout_style != "auto"):
                 positions = self._arranged()
             self.update({"positions": positions})
+            self._laid_out()
         else:
             self._ensure_positions()
-        c = result.counts
-        elapsed = time.perf_counter() - job.started
-        self.append_log(
-            f"run {job.run_id} done in {elapsed:.2f} s: {c.get('edges', 0)} edges "
-            f"({c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
-            f"{c.get('contested', 0)} contested); {c.get('tests', 0)} tests, "
-            f"{c.get('tests_from_cache', 0)} from the cache")
+        self.append_log(f"run {job.run_id} done in {self.last_run_seconds:.2f} s: "
+                        + run_counts(result))
         for text in list(warnings_seen) + list(result.conflicts) + list(result.notes):
             self.append_log(f"note: {text}")
         return True
@@ -825,15 +872,19 @@ class Session:
         object.__setattr__(self, "_job", None)
         object.__setattr__(self, "_result_key", state.pop("result_key"))
         object.__setattr__(self, "_auto_layout", not state["positions"])
+        object.__setattr__(self, "_data_changed", bool(state.pop("stale", False))
+                           and state["result"] is not None)
+        object.__setattr__(self, "last_run_seconds", None)
         session_path = state.pop("session_path")
         state.update({"status": "done" if state["result"] is not None else "idle",
                       "progress": None,
                       "session_path": None if recovered else str(Path(path).resolve())})
         if recovered:
             state["session_path"] = session_path
+        state["layouts"] = self.layouts + 1
         self.update(state)
         self._ensure_positions()
-        self.update({"stale": self._compute_stale() or bool(state.get("stale"))})
+        self.update({"stale": self._compute_stale()})
         self.update({"dirty": recovered})
         object.__setattr__(self, "_autosaved_generation", self._generation)
         self.append_log(("recovered the autosaved session" if recovered
@@ -890,6 +941,15 @@ class Session:
         if self.autosave_path is None or not self.autosave_path.exists():
             return False
         return self.open_session(self.autosave_path, recovered=True)
+
+
+def run_counts(result: SearchResult) -> str:
+    """The counts of a result in words, as the run log and the status bar show them (the
+    engine's own ``counts``, nothing recounted)."""
+    c = result.counts
+    return (f"{c.get('edges', 0)} edges ({c.get('directed', 0)} directed, "
+            f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested); "
+            f"{c.get('tests', 0)} tests, {c.get('tests_from_cache', 0)} from the cache")
 
 
 def _write_atomic(path: Path, text: str) -> None:

@@ -699,6 +699,7 @@ class GraphCanvas(QGraphicsView):
         ev.knowledge.connect(self._on_knowledge)
         ev.overlay.connect(self._on_overlay)
         ev.positions.connect(self._on_positions)
+        ev.layouts.connect(lambda _: self.request_fit())
         ev.selection.connect(self._on_selection)
         ev.stale.connect(self._on_banner)
         ev.status.connect(self._on_banner)
@@ -884,6 +885,10 @@ class GraphCanvas(QGraphicsView):
         text = ""
         if s.status in ("running", "stopping") and s.result is not None:
             text = "Searching… the diagram below is the previous result."
+        elif s.data_changed:
+            text = ("The data file changed since this result was saved (its fingerprint "
+                    "differs): the diagram is the saved one, faded. Press Run (Ctrl+R) to "
+                    "search the current data.")
         elif s.stale and s.result is not None:
             text = ("This diagram was found with other settings, knowledge or variables. "
                     "Run (Ctrl+R) to bring it up to date.")

@@ -471,9 +471,10 @@ class MainWindow(QMainWindow):
                 "failed": "The run failed — see the message and the run log"}[status]
         if status == "done" and self.session.result is not None:
             r = self.session.result
-            text = (f"Done: {len(r.edges)} edges, {r.counts.get('tests', 0)} tests "
-                    f"({r.counts.get('tests_from_cache', 0)} from the cache) in "
-                    f"{r.timings.get('total_s', 0):.2f} s")
+            seconds = self.session.last_run_seconds
+            text = f"Done: {_session.run_counts(r)}"
+            if seconds is not None:  # the same measure as the run log's line
+                text = f"Done in {seconds:.2f} s: {_session.run_counts(r)}"
         self.status_text.setText(text)
         if not running and self._rerun_after_stop:
             self._rerun_after_stop = False
@@ -593,6 +594,8 @@ class MainWindow(QMainWindow):
         s = self.session
         if not (s.stale and s.result is not None):
             return
+        if s.data_changed:  # a saved result on changed data: the user decides when to run
+            return
         if s.status in ("running", "stopping"):
             self._rerun_after_stop = True
             self.runner.stop()
@@ -615,6 +618,7 @@ class MainWindow(QMainWindow):
         else:
             ok = self.session.open_data(path)
         if ok:
+            self._auto_timer.stop()  # opening is not an edit: nothing runs by itself
             self.add_recent(path)
             self.canvas.request_fit()
         return ok

@@ -185,3 +185,84 @@ def test_legend_folds_and_lists_the_marks_drawn(qtbot, window):
     kinds = [k for k, _ in legend.rows]
     assert "bidirected" in kinds and "partially-directed" in kinds
     assert "nondirected" not in kinds
+
+
+# -- item 8: the status bar says what the log says --------------------------------------------
+
+def test_status_bar_time_and_counts_equal_the_log_and_the_engine(qtbot, window, tmp_path):
+    import re
+    from gui_data import collider_frame
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    window.open_path(tmp_path / "c.csv")
+    run_and_wait(qtbot, window)
+    status = window.status_text.text()
+    line = [ln for ln in window.session.log if " done in " in ln][-1]
+    seconds_status = re.search(r"Done in ([0-9.]+) s", status).group(1)
+    seconds_log = re.search(r"done in ([0-9.]+) s", line).group(1)
+    assert seconds_status == seconds_log
+    c = window.session.result.counts  # the engine's own counts, nothing recounted
+    for text in (status, line):
+        assert f"{c['edges']} edges" in text
+        assert f"{c['tests']} tests, {c['tests_from_cache']} from the cache" in text
+
+
+# -- item 10: the view fits every new layout ---------------------------------------------------
+
+def _all_nodes_in_view(canvas):
+    view = canvas.mapToScene(canvas.viewport().rect()).boundingRect()
+    return all(view.contains(n.sceneBoundingRect()) for n in canvas.nodes.values())
+
+
+def test_view_fits_the_diagram_after_every_new_layout(qtbot, window, tmp_path):
+    from gui_data import collider_frame
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    canvas = window.canvas
+    window.open_path(tmp_path / "c.csv")
+    assert _all_nodes_in_view(canvas)
+    canvas.zoom(4.0)  # the user zooms in: nodes leave the view
+    canvas.centerOn(5000, 5000)
+    assert not _all_nodes_in_view(canvas)
+    run_and_wait(qtbot, window)  # first run: a new layout around the edges
+    assert _all_nodes_in_view(canvas)
+    canvas.zoom(4.0)
+    canvas.centerOn(5000, 5000)
+    (tmp_path / "k.toml").write_text('stages = [["a", "b"], ["c"], ["d", "e"]]\n')
+    assert window.session.load_knowledge(tmp_path / "k.toml")  # knowledge with stages
+    assert _all_nodes_in_view(canvas)
+    canvas.zoom(4.0)
+    canvas.centerOn(5000, 5000)
+    assert window.session.move_to_stage(["e"], 0)  # stages changed
+    assert _all_nodes_in_view(canvas)
+    canvas.zoom(4.0)
+    canvas.centerOn(5000, 5000)
+    window.session.arrange("layered")
+    assert _all_nodes_in_view(canvas)
+
+
+# -- item 12: a session on changed data opens stale, and waits ----------------------------------
+
+def test_session_on_changed_data_opens_stale_with_a_banner_and_waits(qtbot, window, tmp_path):
+    from gui_data import collider_frame
+    data = tmp_path / "c.csv"
+    collider_frame().to_csv(data, index=False)
+    window.open_path(data)
+    run_and_wait(qtbot, window)
+    saved = tmp_path / "s.edgewise"
+    assert window.session.save_session(saved)
+    collider_frame(seed=11).to_csv(data, index=False)  # the data file changes
+    window.act_auto.setChecked(True)  # auto re-run on: still, nothing runs by itself
+    runs = window.session.run_id
+    assert window.open_path(saved)
+    s = window.session
+    assert s.result is not None and s.stale and s.data_changed
+    banner = window.canvas.banner
+    assert banner.isVisible() and "data file changed" in banner.text()
+    assert all(item.faded for item in window.canvas.edges.values())
+    qtbot.wait(800)  # longer than the auto re-run's delay
+    assert s.run_id == runs and s.status == "done"
+    # an edit does not run it either: the user presses Run
+    s.set_setting("alpha", 0.01)
+    qtbot.wait(800)
+    assert s.run_id == runs
+    run_and_wait(qtbot, window)
+    assert not s.data_changed and not s.stale and not banner.isVisible()
