@@ -46,6 +46,7 @@ from discovery.settings import SearchSettings
 
 from . import _layout
 from ._events import EventGroup
+from ._words import window_words
 from ._notifications import NotificationChannel
 
 __all__ = ["Session", "SearchJob", "FORMAT", "VERSION", "STATUSES", "FIELDS",
@@ -363,13 +364,16 @@ class Session:
 
     # -- logging ------------------------------------------------------------------------------
     def append_log(self, line: str) -> None:
+        """Add a line to the run log (command-line options told as window controls)."""
+        line = window_words(line)
         stamp = time.strftime("%H:%M:%S")
         lines = (self.log + (f"{stamp}  {line}",))[-_LOG_LINES:]
         self.update({"log": lines})
 
     def _error(self, message, title):
+        message = window_words(str(message))
         self.append_log(f"{title}: {message}")
-        self.notifications.error(str(message), title=title)
+        self.notifications.error(message, title=title)
 
     # -- data ---------------------------------------------------------------------------------
     def open_data(self, path) -> bool:
@@ -426,6 +430,17 @@ class Session:
                    or knowledge.stages != self.knowledge.stages)
         self.append_log(f"knowledge loaded from {path}")
         return True
+
+    @staticmethod
+    def knowledge_beside(data_path) -> Path | None:
+        """The knowledge file kept beside a data file (``knowledge.toml`` in its folder, or
+        ``<stem>.knowledge.toml``), as the bundled examples have; None when there is none."""
+        data_path = Path(data_path)
+        for candidate in (data_path.with_name(f"{data_path.stem}.knowledge.toml"),
+                          data_path.with_name("knowledge.toml")):
+            if candidate.is_file():
+                return candidate
+        return None
 
     def save_knowledge(self, path) -> bool:
         from discovery.knowledge import write_knowledge
@@ -891,7 +906,7 @@ class Session:
                          else f"session opened from {path}"))
         for text in warns:
             self.append_log(f"warning: {text}")
-            self.notifications.warning(text, title="Open session")
+            self.notifications.warning(window_words(text), title="Open session")
         return True
 
     # -- autosave and recovery ----------------------------------------------------------------

@@ -24,6 +24,7 @@ from discovery.result import ASSUMPTIONS
 from discovery.settings import PARAMETERS
 
 from .. import _session
+from .._words import test_label
 from . import export as _export
 from . import style
 from .canvas import GraphCanvas
@@ -65,6 +66,18 @@ def slider_to_alpha(position: int) -> float:
     lo, hi = (math.log10(v) for v in ALPHA_SLIDER_RANGE)
     value = 10 ** (lo + (hi - lo) * position / _SLIDER_STEPS)
     return float(f"{value:.2g}")
+
+
+#: Data file names that say nothing by themselves: the title adds their folder.
+_GENERIC_STEMS = {"data", "table", "export", "dataset", "raw", "input"}
+
+
+def _data_title(path) -> str:
+    """The data file's name for the title; ``greenhouse/data.csv`` for a generic name."""
+    path = Path(path)
+    if path.stem.lower() in _GENERIC_STEMS and path.parent.name:
+        return f"{path.parent.name}/{path.name}"
+    return path.name
 
 
 class AssumptionsDialog(QDialog):
@@ -273,9 +286,11 @@ class MainWindow(QMainWindow):
         self.test_choice = QComboBox()
         self.test_choice.setObjectName("testChoice")
         for name, desc in TEST_NAMES.items():
-            self.test_choice.addItem(name, name)
-            self.test_choice.setItemData(self.test_choice.count() - 1, desc, Qt.ToolTipRole)
+            self.test_choice.addItem(test_label(name), name)
+            self.test_choice.setItemData(self.test_choice.count() - 1, f"{name}: {desc}",
+                                         Qt.ToolTipRole)
         self.test_choice.setToolTip("independence test")
+        self.test_choice.currentIndexChanged.connect(self._test_tooltip)
         self.test_choice.currentIndexChanged.connect(
             lambda i: self.session.set_setting("test", self.test_choice.itemData(i)))
         tb.addWidget(self.test_choice)
@@ -437,6 +452,14 @@ class MainWindow(QMainWindow):
         self.cancel_button.setObjectName("statusCancel")
         self.cancel_button.clicked.connect(self.stop)
         sb.addPermanentWidget(self.cancel_button)
+        # the assumptions note is one click away whatever the window's width (the toolbar's
+        # own button can be pushed into its overflow menu)
+        self.status_assumptions = QPushButton("Assumptions and cautions (F1)")
+        self.status_assumptions.setObjectName("statusAssumptions")
+        self.status_assumptions.setFlat(True)
+        self.status_assumptions.setToolTip("The assumptions under which the diagram is sound")
+        self.status_assumptions.clicked.connect(self.show_assumptions)
+        sb.addPermanentWidget(self.status_assumptions)
         self.progress_bar.hide()
         self.cancel_button.hide()
 
@@ -445,6 +468,7 @@ class MainWindow(QMainWindow):
         with signals_blocked(self.test_choice, self.alpha_slider, self.alpha_box,
                              self.depth_box, self.collider_choice):
             self.test_choice.setCurrentIndex(max(0, self.test_choice.findData(settings.test)))
+            self._test_tooltip(self.test_choice.currentIndex())
             self.alpha_slider.setValue(alpha_to_slider(settings.alpha))
             self.alpha_box.setText(f"{settings.alpha:g}")
             self.depth_box.setValue(self._depth_none if settings.max_depth is None
@@ -544,7 +568,7 @@ class MainWindow(QMainWindow):
     def _update_title(self, _=None):
         s = self.session
         name = Path(s.session_path).name if s.session_path else (
-            Path(s.data_path).name if s.data_path else "no data")
+            _data_title(s.data_path) if s.data_path else "no data")
         self.setWindowTitle(f"{name}{' •' if s.dirty else ''} — Edgewise")
 
     def _on_notification(self, note):
@@ -574,6 +598,10 @@ class MainWindow(QMainWindow):
             return
         if not self.session.set_setting("alpha", value):
             self._on_settings(self.session.settings)
+
+    def _test_tooltip(self, index):
+        name = self.test_choice.itemData(index)
+        self.test_choice.setToolTip(f"independence test: {name} — {TEST_NAMES.get(name, '')}")
 
     def _on_depth(self, value):
         self.session.set_setting("max_depth", None if value == self._depth_none else value)
@@ -617,11 +645,28 @@ class MainWindow(QMainWindow):
             ok = self.session.open_session(path)
         else:
             ok = self.session.open_data(path)
+            if ok:
+                self.offer_knowledge_beside(path)
         if ok:
             self._auto_timer.stop()  # opening is not an edit: nothing runs by itself
             self.add_recent(path)
             self.canvas.request_fit()
         return ok
+
+    def offer_knowledge_beside(self, data_path) -> bool:
+        """When a knowledge file sits beside the data (as in the bundled examples), ask
+        whether to load it; True when it was loaded."""
+        found = self.session.knowledge_beside(data_path)
+        if found is None:
+            return False
+        answer = QMessageBox.question(
+            self, "Knowledge beside the data",
+            f"{found.name} sits beside {Path(data_path).name}. Load its knowledge (locked "
+            "and forbidden pairs, stages) into the session? You can edit or clear it "
+            "afterwards.", QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
+        if answer != QMessageBox.Yes:
+            return False
+        return self.session.load_knowledge(found)
 
     def _dialog_folder(self) -> str:
         return str(self.qsettings.value("lastFolder", str(Path.home())))

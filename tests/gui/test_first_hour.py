@@ -22,6 +22,9 @@ def dialogs(monkeypatch):
     shown = []
     monkeypatch.setattr(QMessageBox, "warning",
                         staticmethod(lambda parent, title, text, *a: shown.append((title, text))))
+    # questions (load the knowledge beside the data?) are answered No unless a test says
+    monkeypatch.setattr(QMessageBox, "question",
+                        staticmethod(lambda *a, **k: QMessageBox.No))
     return shown
 
 
@@ -266,3 +269,102 @@ def test_session_on_changed_data_opens_stale_with_a_banner_and_waits(qtbot, wind
     assert s.run_id == runs
     run_and_wait(qtbot, window)
     assert not s.data_changed and not s.stale and not banner.isVisible()
+
+
+# -- item 13: plain words ----------------------------------------------------------------------
+
+def test_test_names_are_readable_with_the_identifier_in_the_tooltip(window):
+    from PySide6.QtCore import Qt
+    from discovery.independence import TEST_NAMES
+    combo = window.test_choice
+    assert [combo.itemData(i) for i in range(combo.count())] == list(TEST_NAMES)
+    for i in range(combo.count()):
+        name = combo.itemData(i)
+        assert combo.itemText(i) != name and "-" not in combo.itemText(i)
+        assert name in combo.itemData(i, Qt.ToolTipRole)
+    window.session.set_setting("test", "kci")
+    assert combo.currentText() == "Nonlinear (kernel)" and "kci" in combo.toolTip()
+
+
+def test_window_errors_name_window_controls_not_options(qtbot, window, dialogs, tmp_path):
+    """The engine's message for perfectly collinear columns says "e.g. with --columns";
+    the window says where to do that instead."""
+    rng = np.random.default_rng(2)
+    a, b = rng.normal(size=200), rng.normal(size=200)
+    pd.DataFrame({"a": a, "b": b, "c": a + b}).to_csv(tmp_path / "col.csv", index=False)
+    window.open_path(tmp_path / "col.csv")
+    window.session.set_setting("test", "fisher-z")
+    run_and_wait(qtbot, window)
+    qtbot.waitUntil(lambda: bool(dialogs), timeout=5000)
+    title, text = dialogs[-1]
+    assert "collinear" in text and "Variables panel" in text
+    assert "--" not in text and "--" not in window.session.log[-1]
+
+
+def test_window_words_maps_each_option(window):
+    from gui._words import window_words
+    assert window_words("lower --max-depth to 2 or less") == "set the Depth box to 2 or less"
+    assert "--" not in window_words("choose a test with --test g-squared")
+    unknown = window_words("the column has decimal commas; use --decimal ,")
+    assert "command line" in unknown and "not in the window" in unknown
+
+
+def test_a_disabled_run_looks_disabled(window):
+    from PySide6.QtCore import QPoint
+
+    def background(button):
+        image = button.grab().toImage()
+        c = image.pixelColor(QPoint(4, image.height() // 2))
+        return (c.red() + c.green() + c.blue()) / 3
+    assert window.session.dataset is None and not window.run_button.isEnabled()
+    disabled = background(window.run_button)
+    window.run_button.setEnabled(True)
+    enabled = background(window.run_button)
+    assert enabled < 110 < 200 < disabled  # slate when it can run, pale when it cannot
+
+
+def test_assumptions_reachable_from_a_visible_control_at_the_default_size(qtbot, tmp_path,
+                                                                          dialogs):
+    settings = QSettings(str(tmp_path / "fresh.ini"), QSettings.IniFormat)
+    w = MainWindow(settings=settings)  # the default size, nothing restored
+    w.ask_before_closing = False
+    qtbot.addWidget(w)
+    w.show()
+    qtbot.waitExposed(w)
+    button = w.status_assumptions
+    assert button.isVisible() and button.objectName() == "statusAssumptions"
+    inside = button.mapTo(w, button.rect().bottomRight())
+    assert 0 <= inside.x() <= w.width() and 0 <= inside.y() <= w.height()
+    button.click()
+    from PySide6.QtWidgets import QDialog
+    assert any(d.objectName() == "assumptionsDialog" and d.isVisible()
+               for d in w.findChildren(QDialog))
+    w.runner.shutdown()
+
+
+@pytest.mark.parametrize("answer", ["yes", "no"])
+def test_opening_an_example_offers_its_knowledge(qtbot, window, tmp_path, monkeypatch, answer):
+    import shutil
+    from discovery.knowledge import read_knowledge
+    from gui_data import EXAMPLE
+    if not (EXAMPLE / "knowledge.toml").exists():
+        pytest.skip("the greenhouse example is not in this tree")
+    folder = tmp_path / "greenhouse"
+    folder.mkdir()
+    for name in ("data.csv", "knowledge.toml"):
+        shutil.copy(EXAMPLE / name, folder / name)
+    asked = []
+
+    def question(parent, title, text, *a):
+        asked.append(text)
+        return QMessageBox.Yes if answer == "yes" else QMessageBox.No
+    monkeypatch.setattr(QMessageBox, "question", staticmethod(question))
+    assert window.open_path(folder / "data.csv")
+    assert len(asked) == 1 and "knowledge.toml" in asked[0]
+    wanted = read_knowledge(folder / "knowledge.toml")
+    if answer == "yes":
+        assert window.session.knowledge == wanted
+    else:
+        assert window.session.knowledge != wanted
+    # the title names the folder, since every example's table is called data.csv
+    assert window.windowTitle().startswith("greenhouse/data.csv")
