@@ -21,8 +21,8 @@ import numpy as np
 from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPainter,
                            QPainterPath, QPainterPathStroker, QPen, QPolygonF)
-from PySide6.QtWidgets import (QGraphicsItem, QGraphicsScene, QGraphicsView, QLabel, QMenu,
-                               QWidget)
+from PySide6.QtWidgets import (QCompleter, QGraphicsItem, QGraphicsScene, QGraphicsView,
+                               QLabel, QLineEdit, QMenu, QWidget)
 
 from . import style
 
@@ -652,6 +652,8 @@ class GraphCanvas(QGraphicsView):
     """
 
     zoomed = Signal(float)
+    #: the variable the view is focused on (find, Ctrl+F), or "" when the focus ends
+    focused_on = Signal(str)
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
@@ -691,6 +693,16 @@ class GraphCanvas(QGraphicsView):
         self.hint.setObjectName("canvasHint")
         self.hint.setAlignment(Qt.AlignCenter)
         self.legend = Legend(self)
+        self.focused = None
+        self.find_box = QLineEdit(self)
+        self.find_box.setObjectName("findBox")
+        self.find_box.setPlaceholderText("Find a variable… (Enter: focus, Esc: close)")
+        self.find_box.setClearButtonEnabled(True)
+        self.find_box.setFixedWidth(280)
+        self.find_box.returnPressed.connect(self._find_entered)
+        self.find_box.installEventFilter(self)
+        self.find_box.hide()
+        self.find_message = ""
 
         ev = session.events
         ev.result.connect(self._on_structure)
@@ -753,6 +765,16 @@ class GraphCanvas(QGraphicsView):
             self._refreshing = False
         self._on_banner()
         self._update_scene_rect()
+        names = list(s.variables)
+        completer = QCompleter(names, self.find_box)
+        completer.setCaseSensitivity(Qt.CaseInsensitive)
+        completer.setFilterMode(Qt.MatchContains)
+        self.find_box.setCompleter(completer)
+        if self.focused is not None:
+            if self.focused in self.nodes:
+                self._dim_around(self.focused)
+            else:
+                self.clear_focus()
         if self._fit_pending and self.nodes:
             self.fit()
 
@@ -843,6 +865,8 @@ class GraphCanvas(QGraphicsView):
         self._update_scene_rect()
 
     def _on_selection(self, selection):
+        if self.focused is not None and self.focused not in selection:
+            self.clear_focus()
         chosen = set(selection)
         for name, node in self.nodes.items():
             on = name in chosen and len(chosen) == 1 or (len(chosen) == 2 and name in chosen)
@@ -921,7 +945,8 @@ class GraphCanvas(QGraphicsView):
         top = vp.y() + (56 if self.nodes else vp.height() // 2 + 40)
         self.hint.setGeometry(vp.x(), top, vp.width(), 30)
         self.legend.move(vp.x() + 10, vp.y() + vp.height() - self.legend.height() - 10)
-        for w in (self.banner, self.hint, self.legend):
+        self.find_box.move(vp.x() + vp.width() - self.find_box.width() - 12, vp.y() + 12)
+        for w in (self.banner, self.hint, self.legend, self.find_box):
             w.raise_()
 
     def resizeEvent(self, event):
@@ -983,10 +1008,13 @@ class GraphCanvas(QGraphicsView):
         rect = QRectF()
         for item in list(self.nodes.values()) + self.bands:
             rect = rect.united(item.sceneBoundingRect())
-        rect = rect.adjusted(-40, -60, 40, 40)
         if self.viewport().width() < 50:
             return
         self._fit_pending = False
+        self._fit_rect(rect)
+
+    def _fit_rect(self, rect: QRectF):
+        rect = rect.adjusted(-40, -60, 40, 40)
         self.fitInView(rect, Qt.KeepAspectRatio)
         if self.transform().m11() > 1.25:
             self.resetTransform()
@@ -997,6 +1025,94 @@ class GraphCanvas(QGraphicsView):
     def request_fit(self):
         self._fit_pending = True
         self.fit()
+
+    # -- find and focus ----------------------------------------------------------------------
+    def neighbours(self, name: str) -> set:
+        """The variables that share an edge of the diagram with ``name``."""
+        return {v for key in self.edges if name in key for v in key} - {name}
+
+    def focus_on(self, name: str) -> bool:
+        """Select ``name``, fade everything but it, its neighbours and their edges, and fit
+        the view to that neighbourhood. False when there is no such variable."""
+        node = self.nodes.get(name)
+        if node is None:
+            return False
+        self.focused = name
+        self.session.select_node(name)
+        self._dim_around(name)
+        rect = QRectF()
+        for v in self.neighbours(name) | {name}:
+            rect = rect.united(self.nodes[v].sceneBoundingRect())
+        self._fit_rect(rect)
+        self.focused_on.emit(name)
+        return True
+
+    def _dim_around(self, name: str):
+        near = self.neighbours(name) | {name}
+        for v, item in self.nodes.items():
+            item.setOpacity(1.0 if v in near else 0.2)
+        for key, item in self.edges.items():
+            item.setOpacity(1.0 if name in key else 0.12)
+        for item in self.overlays:
+            item.setOpacity(1.0 if name in (item.source, item.target) else 0.12)
+
+    def clear_focus(self):
+        """End the focus: everything drawn at full strength again."""
+        if self.focused is None:
+            return
+        self.focused = None
+        for item in list(self.nodes.values()) + list(self.edges.values()) + self.overlays:
+            item.setOpacity(1.0)
+        self.focused_on.emit("")
+
+    def show_find(self):
+        """Show the find box (Ctrl+F) with the keyboard in it."""
+        self._place_overlays()
+        self.find_box.show()
+        self.find_box.raise_()
+        self.find_box.setFocus()
+        self.find_box.selectAll()
+
+    def find(self, text: str) -> str | None:
+        """The variable ``text`` names: an exact name (any case), else the only name that
+        contains it, else the first name that starts with it; None when none does."""
+        text = text.strip()
+        if not text:
+            return None
+        names = list(self.nodes)
+        low = text.lower()
+        exact = [n for n in names if n.lower() == low]
+        if exact:
+            return exact[0]
+        contains = [n for n in names if low in n.lower()]
+        if len(contains) == 1:
+            return contains[0]
+        starts = [n for n in names if n.lower().startswith(low)]
+        return starts[0] if starts else None
+
+    def _find_entered(self):
+        text = self.find_box.text()
+        name = self.find(text)
+        if name is None:
+            self.find_message = (f"no variable matches {text.strip()!r}; type part of a name "
+                                 "(the list under the box shows the matches)")
+            self.session.notifications.info(self.find_message, title="Find")
+            return
+        self.find_message = ""
+        self.focus_on(name)
+
+    def eventFilter(self, watched, event):
+        if watched is self.find_box and event.type() == event.Type.ShortcutOverride \
+                and event.key() == Qt.Key_Escape:
+            event.accept()  # Esc in the box closes it, it does not stop a search
+            return True
+        if watched is self.find_box and event.type() == event.Type.KeyPress \
+                and event.key() == Qt.Key_Escape:
+            self.find_box.hide()
+            self.clear_focus()
+            self.setFocus()
+            return True
+        return super().eventFilter(watched, event)
 
     def contextMenuEvent(self, event):
         item = self.itemAt(event.pos())
@@ -1041,8 +1157,14 @@ class GraphCanvas(QGraphicsView):
                     act.triggered.connect(
                         lambda _=False, n=item.name, inc=inc: s.set_included(n, not inc))
         else:
-            for text, slot in (("Arrange", s.arrange), ("Fit to view", self.request_fit)):
-                menu.addAction(text).triggered.connect(slot)
+            for text, slot in (("Arrange again", lambda: s.arrange()),
+                               ("Arrange (layered by stage, else force-directed)",
+                                lambda: s.arrange("auto")),
+                               ("Arrange in layers", lambda: s.arrange("layered")),
+                               ("Arrange force-directed", lambda: s.arrange("force")),
+                               ("Fit to view", self.request_fit),
+                               ("Find a variable… (Ctrl+F)", self.show_find)):
+                menu.addAction(text).triggered.connect(lambda _=False, f=slot: f())
             act = menu.addAction("Knowledge overlay")
             act.setCheckable(True)
             act.setChecked(s.overlay)

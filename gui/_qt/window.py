@@ -49,7 +49,8 @@ SHORTCUTS = (
     ("Ctrl+R or F5", "run the search"), ("Esc", "stop the search"),
     ("Ctrl+Z / Ctrl+Shift+Z", "undo / redo a knowledge edit or node move"),
     ("Ctrl+0", "fit the diagram to the view"), ("Ctrl++ / Ctrl+-", "zoom in / out"),
-    ("Ctrl+L", "arrange (layered by stage, else force-directed)"),
+    ("Ctrl+L", "arrange again (View → Arrange as: layers or force-directed)"),
+    ("Ctrl+F", "find a variable and focus on its neighbours (Esc ends the focus)"),
     ("Ctrl+K", "knowledge overlay on/off"), ("Ctrl+E", "export…"),
     ("L / F / Delete", "lock / forbid / clear the selected pair"),
     ("F1", "assumptions and cautions"),
@@ -231,7 +232,19 @@ class MainWindow(QMainWindow):
         self.act_zoom_out = a("actionZoomOut", "Zoom out", lambda: self.canvas.zoom(0.8),
                               "Ctrl+-")
         self.act_arrange = a("actionArrange", "Arrange", s.arrange, "Ctrl+L",
-                             "Lay the diagram out again: layered by stage, else force-directed")
+                             "Lay the diagram out again, in the layout chosen last (at first: "
+                             "layered by stage, else force-directed)")
+        self.act_arrange_auto = a("actionArrangeAuto", "Layered by stage, else force-directed",
+                                  lambda: s.arrange("auto"))
+        self.act_arrange_layered = a("actionArrangeLayered", "In layers (by stage, else by "
+                                     "arrow direction)", lambda: s.arrange("layered"),
+                                     None, "Columns left to right: stages, or without stages "
+                                     "the arrows' direction (every arrow points right)")
+        self.act_arrange_force = a("actionArrangeForce", "Force-directed",
+                                   lambda: s.arrange("force"))
+        self.act_find = a("actionFind", "Find a variable…", self.canvas.show_find,
+                          QKeySequence.Find, "Find a variable by name and focus on its "
+                                             "neighbours (Esc in the box ends the focus)")
         self.act_overlay = a("actionOverlay", "Overlay",
                              lambda on: setattr(s, "overlay", on), "Ctrl+K",
                              "Show locked and forbidden pairs on the diagram", checkable=True)
@@ -336,6 +349,13 @@ class MainWindow(QMainWindow):
         tb.addSeparator()
         add(self.act_auto, "autoRunToggle")
         add(self.act_arrange, "arrangeButton")
+        self.arrange_menu = QMenu(self)
+        self.arrange_menu.setObjectName("arrangeMenu")
+        for act in (self.act_arrange_auto, self.act_arrange_layered, self.act_arrange_force):
+            self.arrange_menu.addAction(act)
+        arrange_button = tb.widgetForAction(self.act_arrange)
+        arrange_button.setMenu(self.arrange_menu)
+        arrange_button.setPopupMode(QToolButton.MenuButtonPopup)
         add(self.act_fit, "fitButton")
         add(self.act_overlay, "overlayToggle")
         tb.addSeparator()
@@ -422,9 +442,14 @@ class MainWindow(QMainWindow):
         for act in (self.act_run, self.act_stop, self.act_auto):
             m.addAction(act)
         m = bar.addMenu("&View")
-        for act in (self.act_fit, self.act_zoom_in, self.act_zoom_out, self.act_arrange,
-                    self.act_overlay):
+        for act in (self.act_fit, self.act_zoom_in, self.act_zoom_out, self.act_find,
+                    self.act_arrange):
             m.addAction(act)
+        arrange = m.addMenu("Arrange as")
+        arrange.setObjectName("arrangeAsMenu")
+        for act in (self.act_arrange_auto, self.act_arrange_layered, self.act_arrange_force):
+            arrange.addAction(act)
+        m.addAction(self.act_overlay)
         m.addSeparator()
         for dock in (self.variables_dock, self.stages_dock, self.inspector_dock,
                      self.log_dock):

@@ -368,3 +368,54 @@ def test_opening_an_example_offers_its_knowledge(qtbot, window, tmp_path, monkey
         assert window.session.knowledge != wanted
     # the title names the folder, since every example's table is called data.csv
     assert window.windowTitle().startswith("greenhouse/data.csv")
+
+
+# -- item 11: find and focus, layout choices ---------------------------------------------------
+
+def test_find_a_variable_and_focus_on_its_neighbourhood(qtbot, window, tmp_path):
+    from PySide6.QtCore import Qt
+    from gui_data import collider_frame
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    window.open_path(tmp_path / "c.csv")
+    run_and_wait(qtbot, window)
+    canvas = window.canvas
+    assert canvas.neighbours("c") >= {"a", "b", "d"}  # a → c ← b, c → d
+    window.act_find.trigger()
+    assert window.act_find.shortcut().toString() == "Ctrl+F"
+    box = canvas.find_box
+    assert box.isVisible() and box.hasFocus()
+    qtbot.keyClicks(box, "C")  # any case
+    qtbot.keyClick(box, Qt.Key_Return)
+    assert canvas.focused == "c" and window.session.selection == ("c",)
+    near = canvas.neighbours("c") | {"c"}
+    for name, node in canvas.nodes.items():
+        assert (node.opacity() == 1.0) == (name in near), name
+    view = canvas.mapToScene(canvas.viewport().rect()).boundingRect()
+    for name in near:
+        assert view.contains(canvas.nodes[name].sceneBoundingRect())
+    qtbot.keyClick(box, Qt.Key_Escape)  # ends the focus
+    assert canvas.focused is None and not box.isVisible()
+    assert all(n.opacity() == 1.0 for n in canvas.nodes.values())
+    # a name that is not there: one line, nothing focused
+    canvas.show_find()
+    box.setText("humidity")
+    qtbot.keyClick(box, Qt.Key_Return)
+    assert canvas.focused is None and "no variable matches 'humidity'" in canvas.find_message
+
+
+def test_layered_layout_is_offered_without_stages(qtbot, window, tmp_path):
+    from gui_data import collider_frame
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    window.open_path(tmp_path / "c.csv")
+    run_and_wait(qtbot, window)
+    assert not window.session.knowledge.stages
+    assert window.act_arrange_layered in window.arrange_menu.actions()
+    window.act_arrange_layered.trigger()
+    pos = window.session.positions
+    for e in window.session.result.edges:
+        if e.kind == "directed":
+            assert pos[e.source][0] < pos[e.target][0]  # every arrow points right
+    assert window.session.layout_style == "layered"
+    window.session.undo()
+    window.act_arrange_force.trigger()
+    assert window.session.layout_style == "force"
