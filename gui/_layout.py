@@ -190,8 +190,10 @@ def layered_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]],
     positions = {}
     # a stage with many variables is split into staggered sub-columns, so that edges inside
     # the stage run diagonally instead of through the nodes between their ends
-    split = [max(1, math.ceil(len(c) / MAX_ROWS)) for c in columns]
-    if len(columns) > 1 or len(columns[0]) > MAX_ROWS:
+    # a big diagram gets taller columns, so that the drawing keeps a screen's proportions
+    max_rows = max(MAX_ROWS, round(math.sqrt(len(variables)) * 1.4))
+    split = [max(1, math.ceil(len(c) / max_rows)) for c in columns]
+    if len(columns) > 1 or len(columns[0]) > max_rows:
         split = [max(s, 2) if len(c) > 3 else s for s, c in zip(split, columns)]
     heights = [math.ceil(len(c) / k) + (0.5 if k > 1 else 0) for c, k in zip(columns, split)]
     tallest = max(heights)
@@ -248,7 +250,37 @@ def force_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]], *,
     pairs = np.array([(index[a], index[b]) for a, b in edges if a in index and b in index],
                      dtype=int).reshape(-1, 2)
     xy = _untangle(xy, half, pairs)
+    xy = _compact(xy, half, pairs)
     return {v: (round(float(x), 2), round(float(y), 2)) for v, (x, y) in zip(variables, xy)}
+
+
+def _compact(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *, steps: int = 8,
+             factor: float = 0.93) -> np.ndarray:
+    """Draw the layout together while it stays clean: shrink it towards its centre, let
+    :func:`_untangle` settle it, keep the result if the drawing got smaller and nothing
+    overlaps or sits on an edge (a spring layout leaves wide empty margins)."""
+    def extent(p):
+        lo = (p - half).min(axis=0)
+        hi = (p + half).max(axis=0)
+        return float(np.prod(hi - lo))
+
+    def clean(p):
+        d = np.abs(p[:, None, :] - p[None, :, :])
+        gap = np.stack([half[:, None, 0] + half[None, :, 0] + CLEAR_X * 0.99,
+                        half[:, None, 1] + half[None, :, 1] + CLEAR_Y * 0.99], axis=-1)
+        hit = (d[..., 0] < gap[..., 0]) & (d[..., 1] < gap[..., 1])
+        np.fill_diagonal(hit, False)
+        return not hit.any() and (not len(pairs) or _edge_shove(p, half, pairs) is None)
+
+    if not clean(xy):
+        return xy
+    for _ in range(steps):
+        centre = xy.mean(axis=0)
+        trial = _untangle(centre + (xy - centre) * factor, half, pairs, rounds=150)
+        if not clean(trial) or extent(trial) >= extent(xy) * 0.99:
+            break
+        xy = trial
+    return xy
 
 
 def _untangle(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *,

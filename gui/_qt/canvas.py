@@ -1014,17 +1014,64 @@ class GraphCanvas(QGraphicsView):
         self._fit_rect(rect)
 
     def _fit_rect(self, rect: QRectF):
-        rect = rect.adjusted(-40, -60, 40, 40)
-        self.fitInView(rect, Qt.KeepAspectRatio)
-        if self.transform().m11() > 1.25:
+        """Show ``rect`` whole (never zooming in past 1.25×), clear of the key in the
+        corner: if the key would cover a node, the drawing goes above it or beside it,
+        whichever keeps it larger."""
+        rect = rect.adjusted(-30, -50, 30, 20)
+        vp = self.viewport().rect()
+
+        def zoom_for(left, below):
+            return min(max(vp.width() - 16 - left, 40) / max(rect.width(), 1.0),
+                       max(vp.height() - 8 - below, 40) / max(rect.height(), 1.0), 1.25)
+
+        def apply(left, below):
+            zoom = zoom_for(left, below)
             self.resetTransform()
-            self.scale(1.25, 1.25)
-            self.centerOn(rect.center())
+            self.scale(zoom, zoom)
+            centre = rect.center()
+            self.centerOn(QPointF(centre.x() - left / 2 / zoom, centre.y() + below / 2 / zoom))
+
+        apply(0, 0)
+        if self._key_covers_a_node():
+            key_w, key_h = self.legend.width() + 16, self.legend.height() + 16
+            apply(*max(((key_w, 0), (0, key_h)), key=lambda lb: zoom_for(*lb)))
         self.zoomed.emit(self.transform().m11())
+
+    def _key_covers_a_node(self) -> bool:
+        if not self.legend.isVisible():
+            return False
+        key = self.legend.geometry().translated(-self.viewport().x(), -self.viewport().y())
+        area = self.mapToScene(key).boundingRect()
+        return any(area.intersects(n.sceneBoundingRect()) for n in self.nodes.values())
 
     def request_fit(self):
         self._fit_pending = True
         self.fit()
+
+    def readability(self) -> dict:
+        """How the diagram reads at the current zoom: ``zoom``, ``label_px`` (the height of a
+        node label's text on screen, in pixels), ``overlapping_boxes`` (pairs of node boxes
+        that overlap), ``shortest_edge_px`` (the shortest edge between the boxes it joins,
+        on screen) and ``nodes_in_view`` (how many node boxes lie wholly in the view)."""
+        zoom = self.transform().m11()
+        metrics = QFontMetricsF(self.node_font)
+        boxes = [n.mapRectToScene(n.rect) for n in self.nodes.values()]
+        overlapping = sum(1 for i, a in enumerate(boxes) for b in boxes[i + 1:]
+                          if a.intersects(b))
+        lengths = []
+        for item in self.edges.values():
+            path = QPainterPath(item.p1)
+            if item.control is None:
+                path.lineTo(item.p2)
+            else:
+                path.quadTo(item.control, item.p2)
+            lengths.append(path.length())
+        view = self.mapToScene(self.viewport().rect()).boundingRect()
+        return {"zoom": zoom, "label_px": metrics.height() * zoom,
+                "overlapping_boxes": overlapping,
+                "shortest_edge_px": min(lengths) * zoom if lengths else None,
+                "nodes_in_view": sum(1 for b in boxes if view.contains(b)),
+                "nodes": len(boxes)}
 
     # -- find and focus ----------------------------------------------------------------------
     def neighbours(self, name: str) -> set:

@@ -419,3 +419,27 @@ def test_layered_layout_is_offered_without_stages(qtbot, window, tmp_path):
     window.session.undo()
     window.act_arrange_force.trigger()
     assert window.session.layout_style == "force"
+
+
+def test_sixty_variables_are_readable_at_fit_zoom(qtbot, tmp_path, dialogs):
+    """At the window's default size, a 60-variable diagram fits whole with labels at least
+    7 px tall on screen (common practice, no source: below about 7 px a sans-serif label
+    stops being legible), no two boxes overlapping and no edge shorter than 8 px."""
+    from gui_data import sixty_frame
+    sixty_frame().to_csv(tmp_path / "water.csv", index=False)
+    settings = QSettings(str(tmp_path / "fresh.ini"), QSettings.IniFormat)
+    w = MainWindow(settings=settings)  # the default size
+    w.ask_before_closing = False
+    qtbot.addWidget(w)
+    w.show()
+    qtbot.waitExposed(w)
+    assert w.open_path(tmp_path / "water.csv")
+    run_and_wait(qtbot, w)
+    assert len(w.session.result.edges) > 40
+    seen = w.canvas.readability()
+    assert seen["nodes"] == 60 and seen["nodes_in_view"] == 60
+    assert seen["overlapping_boxes"] == 0
+    assert seen["label_px"] >= 7.0
+    assert seen["shortest_edge_px"] >= 8.0
+    assert not w.canvas._key_covers_a_node()
+    w.runner.shutdown()
