@@ -175,7 +175,10 @@ class SearchJob:
         if not self.cancel.is_set():
             self.extras["positions"] = _layout.arrange(
                 self.dataset.variables, [(e.source, e.target) for e in result.edges],
-                self.knowledge.stages)
+                self.knowledge.stages, style=self.extras.get("style", "auto"),
+                directed=[(e.source, e.target) for e in result.edges
+                          if e.kind == "directed"],
+                sizes=self.extras.get("sizes"))
         seen = []
         for w in caught:
             text = str(w.message)
@@ -266,6 +269,9 @@ class Session:
         object.__setattr__(self, "_data_changed", False)
         #: seconds the last run took, as its log line says (None before any run)
         object.__setattr__(self, "last_run_seconds", None)
+        #: the drawn size (width, height) of each node, when a view has measured them;
+        #: layouts use them instead of an estimate from the name
+        object.__setattr__(self, "node_sizes", {})
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -638,7 +644,8 @@ class Session:
         directed = ([(e.source, e.target) for e in self.result.edges
                      if e.kind == "directed"] if self.result else [])
         return _layout.arrange(self.variables, edges, knowledge.stages,
-                               style=self.layout_style, directed=directed)
+                               style=self.layout_style, directed=directed,
+                               sizes=self.node_sizes)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]
@@ -719,7 +726,8 @@ class Session:
             return None
         object.__setattr__(self, "run_id", self.run_id + 1)
         job = SearchJob(self.run_id, self.dataset, tuple(self.included), self.settings,
-                        self.knowledge, self.cache)
+                        self.knowledge, self.cache,
+                        extras={"sizes": dict(self.node_sizes), "style": self.layout_style})
         object.__setattr__(self, "_job", job)
         self.update({"status": "running",
                      "progress": {"phase": "prepare", "level": 0, "done": 0, "planned": 0,
@@ -770,8 +778,7 @@ class Session:
         if self._auto_layout:  # the first diagram replaces the grid of a fresh table
             object.__setattr__(self, "_auto_layout", False)
             positions = job.extras.get("positions")
-            if (positions is None or set(positions) != set(self.variables)
-                    or self.layout_style != "auto"):
+            if positions is None or set(positions) != set(self.variables):
                 positions = self._arranged()
             self.update({"positions": positions})
             self._laid_out()

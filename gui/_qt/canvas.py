@@ -757,6 +757,8 @@ class GraphCanvas(QGraphicsView):
                 node.setPos(QPointF(*xy))
                 self.scene_.addItem(node)
                 self.nodes[name] = node
+            # the layouts use the sizes as drawn (the session is Qt-free and cannot measure)
+            s.node_sizes = {name: (n.width, NODE_H) for name, n in self.nodes.items()}
             self._build_edges()
             self._build_overlay()
             self._update_bands()
