@@ -22,7 +22,7 @@ from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPainter,
                            QPainterPath, QPainterPathStroker, QPen, QPolygonF)
 from PySide6.QtWidgets import (QCompleter, QGraphicsItem, QGraphicsScene, QGraphicsView,
-                               QLabel, QLineEdit, QMenu, QWidget)
+                               QLabel, QLineEdit, QMenu, QToolButton, QWidget)
 
 from . import style
 
@@ -698,6 +698,8 @@ class GraphCanvas(QGraphicsView):
         self.find_box.setObjectName("findBox")
         self.find_box.setPlaceholderText("Find a variable… (Enter: focus, Esc: close)")
         self.find_box.setClearButtonEnabled(True)
+        for button in self.find_box.findChildren(QToolButton):
+            button.setObjectName("findClear")
         self.find_box.setFixedWidth(280)
         self.find_box.returnPressed.connect(self._find_entered)
         self.find_box.installEventFilter(self)
