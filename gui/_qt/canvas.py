@@ -7,9 +7,9 @@ are drawn from the edge's marks (``Edge.from_mark`` / ``Edge.to_mark``): an arro
 head, a circle a small open ring, a tail nothing — so directed is solid with one filled head,
 undirected has no heads, bidirected (hidden-causes mode) has filled heads at both ends.
 Contested is our own mark: dashed brick red with a small break and a "?" badge in the middle,
-no heads (never open heads at both ends, which the field reads as bidirected). The knowledge overlay puts a deep-teal double bar across locked edges and shows
-forbidden pairs as faint dotted lines with a small cross. Stages are soft bands behind their
-nodes.
+no heads (never open heads at both ends, which the field reads as bidirected). The knowledge
+overlay puts a deep-teal double bar across locked edges and shows forbidden pairs as faint
+dotted lines with a small cross. Stages are soft bands behind their nodes.
 """
 
 from __future__ import annotations

@@ -92,4 +92,5 @@ def test_the_real_xcb_plugin_fails_politely_on_this_machine():
     lines = [ln for ln in done.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1 and lines[0].startswith("edgewise gui:")
     # without the X11 libraries: what to install; with them: the display that is missing
-    assert "apt-get install" in lines[0] or f"cannot connect to the display '{display}'" in lines[0]
+    assert ("apt-get install" in lines[0]
+            or f"cannot connect to the display '{display}'" in lines[0])

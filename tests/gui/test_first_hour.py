@@ -114,7 +114,7 @@ def _is_canvas(image, x, y):
     return _colour(image, x, y) == (0xF7, 0xF6, 0xF3)
 
 
-def test_contested_mark_has_no_heads_a_break_and_a_badge():
+def test_contested_mark_has_no_heads_a_break_and_a_badge(qapp):
     """DESIGN.md §6: dashed brick red (#B5482F), a small break with a "?" badge in the
     middle, no heads — open heads at both ends are the field's bidirected edge."""
     image = _paint("contested")
@@ -141,7 +141,7 @@ def test_contested_mark_has_no_heads_a_break_and_a_badge():
     (("circle", "arrow"), False, True, True, False),   # o→
     (("circle", "circle"), False, False, True, True),  # o–o
 ])
-def test_edge_ends_are_drawn_from_the_marks(marks, filled_a, filled_b, ring_a, ring_b):
+def test_edge_ends_are_drawn_from_the_marks(qapp, marks, filled_a, filled_b, ring_a, ring_b):
     image = _paint("edge", marks=marks)
     for x_tip, sign, filled, ring in ((20, 1, filled_a, ring_a), (240, -1, filled_b, ring_b)):
         wing = x_tip + sign * 10  # inside a filled head's triangle, off the line
@@ -174,6 +174,10 @@ def test_window_draws_contested_edges_with_our_mark(qtbot, window, tmp_path):
     assert edge_text(item.edge) == f"{first['from']} ?– {first['to']} (contested)"
     # the key has a row for it, drawn the same way
     assert ("contested", "contested (?)") in window.canvas.legend.rows
+    # and the Inspector says it the same way
+    window.session.select_pair(first["from"], first["to"])
+    body = window.inspector.body.text()
+    assert f"{first['from']} ?– {first['to']} (contested)" in body and "↔" not in body
 
 
 def test_legend_folds_and_lists_the_marks_drawn(qtbot, window):
