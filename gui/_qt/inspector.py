@@ -193,7 +193,10 @@ class Inspector(QWidget):
                 f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested<br>"
                 f"{c.get('removed', 0)} pairs removed; {c.get('tests', 0)} tests "
                 f"({c.get('tests_from_cache', 0)} from the cache)</p>"]
-        if s.stale:
+        if s.data_changed:
+            html.append("<p style='color:#8A6D3B'>The data file changed since this result "
+                        "was found: run again to search the current data.</p>")
+        elif s.stale:
             html.append("<p style='color:#8A6D3B'>Inputs changed since this result: run "
                         "again to update it.</p>")
         if notes:
@@ -303,8 +306,10 @@ class Inspector(QWidget):
             html.append("<p style='color:#6B7178'>One of these variables was not in the last "
                         "search.</p>")
         if s.stale and r is not None:
-            html.append("<p style='color:#8A6D3B'>Inputs changed since this result; run again "
-                        "to update the evidence.</p>")
+            html.append("<p style='color:#8A6D3B'>"
+                        + ("The data file changed since this result" if s.data_changed
+                           else "Inputs changed since this result")
+                        + "; run again to update the evidence.</p>")
         html.append("<p><b>Knowledge</b>: " + (escape("; ".join(statements)) if statements
                                                else "none about this pair") + "</p>")
         self.body.setText("".join(html))
