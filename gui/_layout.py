@@ -52,6 +52,9 @@ CLEAR_X = 34.0
 CLEAR_Y = 26.0
 #: Least free space between a box and an edge that passes it.
 EDGE_CLEAR = 10.0
+#: Extra space between two boxes joined by an edge, so that the edge shows (and a contested
+#: edge's "?" badge fits with line on both sides).
+EDGE_ROOM = 16.0
 #: ``auto`` picks layered-by-stage when there are stages, else force-directed when there are
 #: edges, else a grid.
 STYLES = ("auto", "layered", "force")
@@ -66,7 +69,8 @@ def node_size(name: str) -> tuple[float, float]:
 def arrange(variables: Sequence[str], edges: Iterable[tuple[str, str]] = (),
             stages: Sequence[Sequence[str]] = (), *, style: str = "auto",
             directed: Iterable[tuple[str, str]] | None = None,
-            sizes: Mapping[str, tuple[float, float]] | None = None, seed: int = 7) -> dict:
+            sizes: Mapping[str, tuple[float, float]] | None = None, seed: int = 7,
+            aspect: float | None = None) -> dict:
     """Lay the variables out.
 
     Parameters
@@ -82,6 +86,9 @@ def arrange(variables: Sequence[str], edges: Iterable[tuple[str, str]] = (),
         every edge counts as one.
     sizes : mapping of name to (width, height), optional
         Drawn box sizes; :func:`node_size` by default.
+    aspect : float, optional
+        Width over height of the view the drawing should fill (force-directed layouts);
+        :data:`ASPECT` by default.
 
     Raises
     ------
@@ -114,7 +121,7 @@ def arrange(variables: Sequence[str], edges: Iterable[tuple[str, str]] = (),
             columns = direction_layers(main, arrows)
         positions = layered_layout(main, edges, columns, sizes=sizes)
     else:
-        positions = force_layout(main, edges, seed=seed, sizes=sizes)
+        positions = force_layout(main, edges, seed=seed, sizes=sizes, aspect=aspect)
     positions.update(_pack_aside(aside, positions, sizes))
     return positions
 
@@ -224,7 +231,8 @@ ASPECT = 1.35
 
 
 def force_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]], *,
-                 seed: int = 7, sizes: Mapping[str, tuple[float, float]] | None = None) -> dict:
+                 seed: int = 7, sizes: Mapping[str, tuple[float, float]] | None = None,
+                 aspect: float | None = None) -> dict:
     """Fruchterman–Reingold placement scaled to the area the boxes need, then boxes pushed
     apart and off the edges that run under them."""
     variables = list(variables)
@@ -242,20 +250,22 @@ def force_layout(variables: Sequence[str], edges: Iterable[tuple[str, str]], *,
     half = np.array([sizes[v] for v in variables], dtype=float) / 2
     # room for every box with its clearance, about twice over (edges need space too)
     area = float(np.sum((2 * half[:, 0] + 1.2 * CLEAR_X) * (2 * half[:, 1] + 1.5 * CLEAR_Y)))
-    width = math.sqrt(area * ASPECT)
+    # pushing wide boxes apart stretches a drawing sideways: aim a little taller
+    aspect = min(max(aspect or ASPECT, 0.5), 3.0) * 0.9
+    width = math.sqrt(area * aspect)
     span = xy.max(axis=0) - xy.min(axis=0)
     span[span == 0] = 1.0
-    xy = xy / span * np.array([width, width / ASPECT])
+    xy = xy / span * np.array([width, width / aspect])
     index = {v: i for i, v in enumerate(variables)}
     pairs = np.array([(index[a], index[b]) for a, b in edges if a in index and b in index],
                      dtype=int).reshape(-1, 2)
     xy = _untangle(xy, half, pairs)
-    xy = _compact(xy, half, pairs)
+    xy = _compact(xy, half, pairs, aspect=aspect)
     return {v: (round(float(x), 2), round(float(y), 2)) for v, (x, y) in zip(variables, xy)}
 
 
 def _compact(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *, steps: int = 8,
-             factor: float = 0.93) -> np.ndarray:
+             factor: float = 0.93, aspect: float = ASPECT) -> np.ndarray:
     """Draw the layout together while it stays clean: shrink it towards its centre, let
     :func:`_untangle` settle it, keep the result if the drawing got smaller and nothing
     overlaps or sits on an edge (a spring layout leaves wide empty margins)."""
@@ -264,23 +274,42 @@ def _compact(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *, steps: int 
         hi = (p + half).max(axis=0)
         return float(np.prod(hi - lo))
 
+    def shape_ok(p):  # squeezing one axis must not turn the drawing into a strip
+        lo = (p - half).min(axis=0)
+        hi = (p + half).max(axis=0)
+        ratio = (hi[0] - lo[0]) / max(hi[1] - lo[1], 1.0)
+        return aspect / 1.4 <= ratio <= aspect * 1.4
+
     def clean(p):
         d = np.abs(p[:, None, :] - p[None, :, :])
-        gap = np.stack([half[:, None, 0] + half[None, :, 0] + CLEAR_X * 0.99,
-                        half[:, None, 1] + half[None, :, 1] + CLEAR_Y * 0.99], axis=-1)
+        gap = _gaps(half, pairs) - 0.5
         hit = (d[..., 0] < gap[..., 0]) & (d[..., 1] < gap[..., 1])
         np.fill_diagonal(hit, False)
         return not hit.any() and (not len(pairs) or _edge_shove(p, half, pairs) is None)
 
     if not clean(xy):
         return xy
-    for _ in range(steps):
-        centre = xy.mean(axis=0)
-        trial = _untangle(centre + (xy - centre) * factor, half, pairs, rounds=150)
-        if not clean(trial) or extent(trial) >= extent(xy) * 0.99:
-            break
-        xy = trial
+    # both axes together, then each alone (one axis often has room the other lacks)
+    for scale in ((factor, factor), (factor, 1.0), (1.0, factor)):
+        for _ in range(steps):
+            centre = xy.mean(axis=0)
+            trial = _untangle(centre + (xy - centre) * np.array(scale), half, pairs,
+                              rounds=150)
+            if (not clean(trial) or extent(trial) >= extent(xy) * 0.99
+                    or (scale[0] != scale[1] and not shape_ok(trial))):
+                break
+            xy = trial
     return xy
+
+
+def _gaps(half: np.ndarray, pairs: np.ndarray) -> np.ndarray:
+    """``[i, j] -> (x, y)``: how far apart two centres must be, across and down."""
+    gap = np.stack([half[:, None, 0] + half[None, :, 0] + CLEAR_X,
+                    half[:, None, 1] + half[None, :, 1] + CLEAR_Y], axis=-1)
+    if len(pairs):
+        gap[pairs[:, 0], pairs[:, 1]] += EDGE_ROOM
+        gap[pairs[:, 1], pairs[:, 0]] += EDGE_ROOM
+    return gap
 
 
 def _untangle(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *,
@@ -296,8 +325,7 @@ def _untangle(xy: np.ndarray, half: np.ndarray, pairs: np.ndarray, *,
     n = len(xy)
     rng = np.random.default_rng(0)
     xy += rng.normal(scale=1e-3, size=xy.shape)  # break exact ties
-    gap = np.stack([half[:, None, 0] + half[None, :, 0] + CLEAR_X,
-                    half[:, None, 1] + half[None, :, 1] + CLEAR_Y], axis=-1)
+    gap = _gaps(half, pairs)
     # boxes apart and off edges; then, if a crowded drawing has not settled, boxes apart only
     # (overlapping boxes are worse than an edge under a box, which the canvas bends around)
     for step in range(rounds + 100):

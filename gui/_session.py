@@ -178,7 +178,7 @@ class SearchJob:
                 self.knowledge.stages, style=self.extras.get("style", "auto"),
                 directed=[(e.source, e.target) for e in result.edges
                           if e.kind == "directed"],
-                sizes=self.extras.get("sizes"))
+                sizes=self.extras.get("sizes"), aspect=self.extras.get("aspect"))
         seen = []
         for w in caught:
             text = str(w.message)
@@ -272,6 +272,9 @@ class Session:
         #: the drawn size (width, height) of each node, when a view has measured them;
         #: layouts use them instead of an estimate from the name
         object.__setattr__(self, "node_sizes", {})
+        #: width over height of the view that shows the diagram (set by the canvas), so a
+        #: force-directed layout fills it; None: the layout's default
+        object.__setattr__(self, "view_aspect", None)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -645,7 +648,7 @@ class Session:
                      if e.kind == "directed"] if self.result else [])
         return _layout.arrange(self.variables, edges, knowledge.stages,
                                style=self.layout_style, directed=directed,
-                               sizes=self.node_sizes)
+                               sizes=self.node_sizes, aspect=self.view_aspect)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]
@@ -727,7 +730,8 @@ class Session:
         object.__setattr__(self, "run_id", self.run_id + 1)
         job = SearchJob(self.run_id, self.dataset, tuple(self.included), self.settings,
                         self.knowledge, self.cache,
-                        extras={"sizes": dict(self.node_sizes), "style": self.layout_style})
+                        extras={"sizes": dict(self.node_sizes), "style": self.layout_style,
+                                "aspect": self.view_aspect})
         object.__setattr__(self, "_job", job)
         self.update({"status": "running",
                      "progress": {"phase": "prepare", "level": 0, "done": 0, "planned": 0,

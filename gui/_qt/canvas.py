@@ -956,6 +956,9 @@ class GraphCanvas(QGraphicsView):
     def resizeEvent(self, event):
         super().resizeEvent(event)
         self._place_overlays()
+        vp = self.viewport()
+        if vp.width() > 100 and vp.height() > 100:
+            self.session.view_aspect = vp.width() / vp.height()
 
     def showEvent(self, event):
         super().showEvent(event)
@@ -1037,8 +1040,12 @@ class GraphCanvas(QGraphicsView):
 
         apply(0, 0)
         if self._key_covers_a_node():
-            key_w, key_h = self.legend.width() + 16, self.legend.height() + 16
-            apply(*max(((key_w, 0), (0, key_h)), key=lambda lb: zoom_for(*lb)))
+            def room():
+                key_w, key_h = self.legend.width() + 16, self.legend.height() + 16
+                return max(((key_w, 0), (0, key_h)), key=lambda lb: zoom_for(*lb))
+            if zoom_for(*room()) < 0.92 * zoom_for(0, 0) and not self.legend.collapsed:
+                self.legend.set_collapsed(True)  # a big diagram needs the room more
+            apply(*room())
         self.zoomed.emit(self.transform().m11())
 
     def _key_covers_a_node(self) -> bool:
