@@ -146,7 +146,7 @@ def _end(painter, mark, tip, ux, uy, *, color, scale):
 def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=None,
               locked: bool = False, forbidden_heads=(), hover: bool = False,
               selected: bool = False, scale: float = 1.0, faded: bool = False,
-              control: QPointF | None = None):
+              control: QPointF | None = None, badge_t: float = 0.5):
     """Draw one mark from a to b.
 
     ``kind`` is an edge kind (``directed``, ``undirected``, ``contested``, and the
@@ -159,7 +159,9 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=Non
     and a "?" badge in its middle and never has heads (open heads at both ends would read as
     a bidirected edge, a hidden common cause). ``forbidden_heads`` lists the ends ("a" or
     "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the edge is
-    a quadratic curve through that control point (used to bend around a node).
+    a quadratic curve through that control point (used to bend around a node). ``badge_t``
+    places the contested badge along the edge (0.5: the middle; moved when two badges would
+    touch).
     """
     path = QPainterPath(a)
     if control is None:
@@ -194,8 +196,9 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=Non
             kind, ("tail", "tail")))
         if contested:  # a small break in the middle, where the badge sits
             length = max(path.length(), 1.0)
-            gap = min(0.3, (BADGE_R + 4) * scale / length)
-            pieces = [_sub_path(path, 0.0, 0.5 - gap), _sub_path(path, 0.5 + gap, 1.0)]
+            gap = min(0.2, (BADGE_R + 4) * scale / length)
+            badge_t = min(max(badge_t, gap + 0.05), 0.95 - gap)
+            pieces = [_sub_path(path, 0.0, badge_t - gap), _sub_path(path, badge_t + gap, 1.0)]
         else:
             pieces = [path]
         if selected:
@@ -211,7 +214,7 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=Non
         _end(painter, end_a, a, ua[0], ua[1], color=color, scale=scale)
         _end(painter, end_b, b, ub[0], ub[1], color=color, scale=scale)
         if contested:
-            _badge(painter, mid, scale)
+            _badge(painter, path.pointAtPercent(badge_t), scale)
         if locked or kind == "locked":
             _double_bar(painter, *_span(path, mid, 0.12 if contested else 0.0), scale)
     for end in forbidden_heads:
@@ -411,6 +414,7 @@ class EdgeItem(QGraphicsItem):
         self.source, self.target = edge.source, edge.target
         self.kind = edge.kind
         self.marks = _marks_of(edge)
+        self.badge_t = 0.5
         self.locked = locked
         self.forbidden_heads = tuple(forbidden_heads)
         self.faded = faded
@@ -473,7 +477,7 @@ class EdgeItem(QGraphicsItem):
                   locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
                   hover=self.hover, selected=self.selected, faded=self.faded,
-                  control=self.control)
+                  control=self.control, badge_t=self.badge_t)
 
     def hoverEnterEvent(self, event):
         self.hover = True
@@ -811,6 +815,7 @@ class GraphCanvas(QGraphicsView):
             self.scene_.addItem(item)
             self.edges[e.pair] = item
         self.legend.set_kinds({e.kind for e in s.result.edges})
+        self._place_badges()
 
     def _build_overlay(self):
         s = self.session
@@ -865,6 +870,7 @@ class GraphCanvas(QGraphicsView):
         if moved:
             for item in self.edges.values():  # bends depend on every node's place
                 item.update_geometry()
+            self._place_badges()
         self._update_bands()
         self._update_scene_rect()
 
@@ -882,6 +888,30 @@ class GraphCanvas(QGraphicsView):
             on = key == pair
             if item.selected != on:
                 item.selected = on
+                item.update()
+
+    def _place_badges(self):
+        """Move a contested badge off its edge's middle when it would touch another badge
+        (two contested edges that cross near their middles)."""
+        placed = []
+        for item in self.edges.values():
+            if item.kind != "contested":
+                continue
+            path = QPainterPath(item.p1)
+            if item.control is None:
+                path.lineTo(item.p2)
+            else:
+                path.quadTo(item.control, item.p2)
+            best = 0.5
+            for t in (0.5, 0.38, 0.62, 0.28, 0.72):
+                at = path.pointAtPercent(t)
+                if all(math.hypot(at.x() - q.x(), at.y() - q.y()) > 3 * BADGE_R
+                       for q in placed):
+                    best = t
+                    break
+            placed.append(path.pointAtPercent(best))
+            if item.badge_t != best:
+                item.badge_t = best
                 item.update()
 
     def _update_bands(self):
@@ -990,6 +1020,7 @@ class GraphCanvas(QGraphicsView):
         if now != before:
             for item in self.edges.values():  # other edges may now bend, or not
                 item.update_geometry()
+            self._place_badges()
             self.session.move_nodes({node.name: now}, label=f"Move {node.name}")
 
     def mousePressEvent(self, event):

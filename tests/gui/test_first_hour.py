@@ -447,3 +447,32 @@ def test_sixty_variables_are_readable_at_fit_zoom(qtbot, tmp_path, dialogs):
     assert seen["shortest_edge_px"] >= 8.0
     assert not w.canvas._key_covers_a_node()
     w.runner.shutdown()
+
+
+def test_badges_of_crossing_contested_edges_do_not_touch(qtbot, window, tmp_path):
+    from discovery.result import SearchResult
+    from gui._qt.canvas import BADGE_R
+    from gui_data import collider_frame
+    collider_frame().to_csv(tmp_path / "c.csv", index=False)
+    window.open_path(tmp_path / "c.csv")
+    run_and_wait(qtbot, window)
+    doc = window.session.result.to_dict()
+    template = dict(doc["edges"][0])
+    for a, b in (("a", "d"), ("b", "e")):
+        doc["edges"].append(dict(template, **{"from": a, "to": b, "kind": "contested",
+                                               "from_mark": "tail", "to_mark": "tail",
+                                               "reason": "colliders disagree",
+                                               "reason_kind": "contested"}))
+    window.session.result = SearchResult.from_dict(doc)
+    # the two edges cross at their middles
+    window.session.move_nodes({"a": (0, 0), "d": (400, 0), "b": (200, -200), "e": (200, 200),
+                               "c": (600, 300)})
+    one, two = (window.canvas.edges[frozenset(p)] for p in (("a", "d"), ("b", "e")))
+
+    def badge(item):
+        from PySide6.QtGui import QPainterPath
+        path = QPainterPath(item.p1)
+        path.lineTo(item.p2)
+        return path.pointAtPercent(item.badge_t)
+    p, q = badge(one), badge(two)
+    assert ((p.x() - q.x()) ** 2 + (p.y() - q.y()) ** 2) ** 0.5 > 3 * BADGE_R
