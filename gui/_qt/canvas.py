@@ -892,8 +892,9 @@ class GraphCanvas(QGraphicsView):
 
     def _place_badges(self):
         """Move a contested badge off its edge's middle when it would touch another badge
-        (two contested edges that cross near their middles)."""
-        placed = []
+        (two contested edges that cross near their middles). Short edges keep their
+        middles; longer ones, which have room, give way."""
+        paths = []
         for item in self.edges.values():
             if item.kind != "contested":
                 continue
@@ -902,13 +903,16 @@ class GraphCanvas(QGraphicsView):
                 path.lineTo(item.p2)
             else:
                 path.quadTo(item.control, item.p2)
-            best = 0.5
-            for t in (0.5, 0.38, 0.62, 0.28, 0.72):
+            paths.append((path.length(), id(item), item, path))
+        placed = []
+        for _, _, item, path in sorted(paths, key=lambda p: p[:2]):
+            def room(t):
                 at = path.pointAtPercent(t)
-                if all(math.hypot(at.x() - q.x(), at.y() - q.y()) > 3 * BADGE_R
-                       for q in placed):
-                    best = t
-                    break
+                return min((math.hypot(at.x() - q.x(), at.y() - q.y()) for q in placed),
+                           default=math.inf)
+            candidates = (0.5, 0.38, 0.62, 0.28, 0.72)
+            best = next((t for t in candidates if room(t) > 3 * BADGE_R),
+                        max(candidates, key=room))
             placed.append(path.pointAtPercent(best))
             if item.badge_t != best:
                 item.badge_t = best
