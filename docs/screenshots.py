@@ -59,6 +59,13 @@ def main() -> int:
     errors = []
     QMessageBox.warning = staticmethod(lambda parent, title, text, *a: errors.append(
         (title, text)))
+    questions = []
+    answers = {"yes": False}
+
+    def question(parent, title, text, *a):
+        questions.append((title, text))
+        return QMessageBox.Yes if answers["yes"] else QMessageBox.No
+    QMessageBox.question = staticmethod(question)
 
     w = MainWindow(settings=QSettings(str(folder / "s.ini"), QSettings.IniFormat),
                    autosave_path=folder / "autosave.edgewise")
@@ -72,6 +79,14 @@ def main() -> int:
     w.open_path(EXAMPLE / "data.csv")
     pump(app)
     shot(w, "02-data-open.png")
+    if questions:  # the offer to load the knowledge file beside the example's data
+        box = QMessageBox(QMessageBox.Question, *questions[-1],
+                          QMessageBox.Yes | QMessageBox.No, w)
+        box.setObjectName("knowledgeOffer")
+        box.show()
+        pump(app)
+        shot(box, "11-knowledge-offer.png")
+        box.close()
 
     w.run()
     wait(app, lambda: w.session.status == "done")
@@ -131,6 +146,41 @@ def main() -> int:
     pump(app)
     shot(dialog, "10-assumptions.png")
     dialog.close()
+
+    # a session whose data changed since it was saved: stale, with its banner
+    import shutil
+    copy = folder / "greenhouse"
+    copy.mkdir()
+    shutil.copy(EXAMPLE / "data.csv", copy / "data.csv")
+    w.open_path(copy / "data.csv")
+    w.run()
+    wait(app, lambda: s.status == "done")
+    s.save_session(copy / "greenhouse.edgewise")
+    frame = pd.read_csv(copy / "data.csv")
+    frame.iloc[: len(frame) // 2].to_csv(copy / "data.csv", index=False)  # a changed export
+    w.open_path(copy / "greenhouse.edgewise")
+    pump(app, 200)
+    shot(w, "12-data-changed.png")
+
+    # 60 variables at the fit zoom, then one found by name (Ctrl+F) and its neighbourhood
+    sys.path.insert(0, str(ROOT / "tests" / "gui"))
+    from gui_data import sixty_frame
+    sixty_frame().to_csv(folder / "water_network.csv", index=False)
+    w.open_path(folder / "water_network.csv")
+    w.run()
+    wait(app, lambda: s.status == "done")
+    pump(app, 200)
+    seen = w.canvas.readability()
+    print("60 variables at fit zoom: " + ", ".join(
+        f"{k} {v:.2f}" if isinstance(v, float) else f"{k} {v}" for k, v in seen.items()))
+    shot(w, "13-sixty-variables.png")
+    w.canvas.show_find()
+    w.canvas.find_box.setText("pressure_3")
+    w.canvas._find_entered()
+    pump(app, 200)
+    shot(w, "14-find-and-focus.png")
+    w.canvas.find_box.hide()
+    w.canvas.clear_focus()
     report_shots(app, w)
     w.close()
     return 0

@@ -46,6 +46,7 @@ from discovery.settings import SearchSettings
 
 from . import _layout
 from ._events import EventGroup
+from ._words import window_words
 from ._notifications import NotificationChannel
 
 __all__ = ["Session", "SearchJob", "FORMAT", "VERSION", "STATUSES", "FIELDS",
@@ -72,6 +73,7 @@ FIELDS = {
     "progress": None,           # dict | None: phase, level, done, planned, elapsed
     "selection": (),            # () | (node,) | (a, b): a node, or a pair (edge or not)
     "positions": MappingProxyType({}),  # name -> (x, y), node centres in canvas units
+    "layouts": 0,               # counts fresh layouts (the canvas fits the view to each)
     "overlay": True,            # show the knowledge overlay on the canvas
     "session_path": None,       # str | None: where the session was last saved or opened
     "dirty": False,             # changed since last save or open
@@ -173,7 +175,10 @@ class SearchJob:
         if not self.cancel.is_set():
             self.extras["positions"] = _layout.arrange(
                 self.dataset.variables, [(e.source, e.target) for e in result.edges],
-                self.knowledge.stages)
+                self.knowledge.stages, style=self.extras.get("style", "auto"),
+                directed=[(e.source, e.target) for e in result.edges
+                          if e.kind == "directed"],
+                sizes=self.extras.get("sizes"), aspect=self.extras.get("aspect"))
         seen = []
         for w in caught:
             text = str(w.message)
@@ -257,6 +262,19 @@ class Session:
         # True while the canvas shows the grid of a freshly opened table: the first result
         # then lays the canvas out around its edges (later results keep the layout)
         object.__setattr__(self, "_auto_layout", True)
+        # the layout style Arrange last used ("auto", "layered" or "force")
+        object.__setattr__(self, "layout_style", "auto")
+        # True while the result shown was found on other data than the file now open (a
+        # session whose data file changed): stale whatever the inputs, until a run
+        object.__setattr__(self, "_data_changed", False)
+        #: seconds the last run took, as its log line says (None before any run)
+        object.__setattr__(self, "last_run_seconds", None)
+        #: the drawn size (width, height) of each node, when a view has measured them;
+        #: layouts use them instead of an estimate from the name
+        object.__setattr__(self, "node_sizes", {})
+        #: width over height of the view that shows the diagram (set by the canvas), so a
+        #: force-directed layout fills it; None: the layout's default
+        object.__setattr__(self, "view_aspect", None)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -330,9 +348,19 @@ class Session:
                 tuple(self.included))
 
     def _compute_stale(self) -> bool:
-        if self._values["result"] is None or self._result_key is None:
+        if self._values["result"] is None:
+            return False
+        if self._data_changed:
+            return True
+        if self._result_key is None:
             return False
         return self._result_key != self._inputs_key()
+
+    @property
+    def data_changed(self) -> bool:
+        """Whether the result shown was found on other data than the file now open (its
+        SHA-256 fingerprint differs); stays True until a run on the current data."""
+        return self._data_changed and self.result is not None
 
     @property
     def variables(self) -> tuple[str, ...]:
@@ -345,13 +373,16 @@ class Session:
 
     # -- logging ------------------------------------------------------------------------------
     def append_log(self, line: str) -> None:
+        """Add a line to the run log (command-line options told as window controls)."""
+        line = window_words(line)
         stamp = time.strftime("%H:%M:%S")
         lines = (self.log + (f"{stamp}  {line}",))[-_LOG_LINES:]
         self.update({"log": lines})
 
     def _error(self, message, title):
+        message = window_words(str(message))
         self.append_log(f"{title}: {message}")
-        self.notifications.error(str(message), title=title)
+        self.notifications.error(message, title=title)
 
     # -- data ---------------------------------------------------------------------------------
     def open_data(self, path) -> bool:
@@ -377,12 +408,13 @@ class Session:
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_result_key", None)
         object.__setattr__(self, "_auto_layout", True)
+        object.__setattr__(self, "_data_changed", False)
         self.update({
             "data_path": str(Path(path).resolve()), "dataset": dataset,
             "included": dataset.variables, "knowledge": knowledge, "result": None,
             "status": "idle", "progress": None, "selection": (),
             "positions": _layout.arrange(dataset.variables, (), knowledge.stages),
-            "session_path": None,
+            "session_path": None, "layouts": self.layouts + 1,
         })
         self.update({"dirty": False})
         object.__setattr__(self, "_autosaved_generation", self._generation)
@@ -407,6 +439,17 @@ class Session:
                    or knowledge.stages != self.knowledge.stages)
         self.append_log(f"knowledge loaded from {path}")
         return True
+
+    @staticmethod
+    def knowledge_beside(data_path) -> Path | None:
+        """The knowledge file kept beside a data file (``knowledge.toml`` in its folder, or
+        ``<stem>.knowledge.toml``), as the bundled examples have; None when there is none."""
+        data_path = Path(data_path)
+        for candidate in (data_path.with_name(f"{data_path.stem}.knowledge.toml"),
+                          data_path.with_name("knowledge.toml")):
+            if candidate.is_file():
+                return candidate
+        return None
 
     def save_knowledge(self, path) -> bool:
         from discovery.knowledge import write_knowledge
@@ -572,14 +615,40 @@ class Session:
         object.__setattr__(self, "_auto_layout", False)
         self._edit({"positions": positions}, label)
 
-    def arrange(self) -> None:
-        """Lay the canvas out afresh: layered by stage when stages exist, else force-directed."""
-        self._edit({"positions": self._arranged()}, "Arrange")
+    def arrange(self, style: str | None = None) -> None:
+        """Lay the canvas out afresh.
+
+        Parameters
+        ----------
+        style : {"auto", "layered", "force"}, optional
+            ``auto``: layered by stage when stages exist, else force-directed; ``layered``:
+            by stage, or by the direction of the arrows when there are no stages. The style
+            is remembered for later layouts (the first diagram of a new run, stage edits).
+            By default the last one used.
+        """
+        if style is not None:
+            if style not in _layout.STYLES:
+                self._error(f"layout must be one of {_layout.STYLES}; got {style!r}",
+                            "Arrange")
+                return
+            object.__setattr__(self, "layout_style", style)
+        label = {"auto": "Arrange", "layered": "Arrange in layers",
+                 "force": "Arrange force-directed"}[self.layout_style]
+        self._edit({"positions": self._arranged()}, label)
+        self._laid_out()
+
+    def _laid_out(self) -> None:
+        """A fresh layout is in place: tell the views (the canvas fits the view to it)."""
+        self.update({"layouts": self.layouts + 1})
 
     def _arranged(self, knowledge: Knowledge | None = None) -> dict:
         knowledge = knowledge or self.knowledge
         edges = [(e.source, e.target) for e in self.result.edges] if self.result else []
-        return _layout.arrange(self.variables, edges, knowledge.stages)
+        directed = ([(e.source, e.target) for e in self.result.edges
+                     if e.kind == "directed"] if self.result else [])
+        return _layout.arrange(self.variables, edges, knowledge.stages,
+                               style=self.layout_style, directed=directed,
+                               sizes=self.node_sizes, aspect=self.view_aspect)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]
@@ -587,6 +656,7 @@ class Session:
             return
         if len(missing) == len(self.variables) or not self.positions:
             self.update({"positions": self._arranged()})
+            self._laid_out()
             return
         fresh = self._arranged()
         positions = dict(self.positions)
@@ -609,6 +679,8 @@ class Session:
         self._redo.clear()
         self.update({k: after for k, (_, after) in changes.items()})
         self._sync_history()
+        if rearrange and "positions" in changes:
+            self._laid_out()
 
     def undo(self) -> bool:
         """Undo the last knowledge edit or layout move."""
@@ -657,7 +729,9 @@ class Session:
             return None
         object.__setattr__(self, "run_id", self.run_id + 1)
         job = SearchJob(self.run_id, self.dataset, tuple(self.included), self.settings,
-                        self.knowledge, self.cache)
+                        self.knowledge, self.cache,
+                        extras={"sizes": dict(self.node_sizes), "style": self.layout_style,
+                                "aspect": self.view_aspect})
         object.__setattr__(self, "_job", job)
         self.update({"status": "running",
                      "progress": {"phase": "prepare", "level": 0, "done": 0, "planned": 0,
@@ -699,6 +773,9 @@ class Session:
         object.__setattr__(self, "_result_key",
                            (job.settings, restrict_knowledge(job.knowledge, job.included),
                             tuple(job.included)))
+        object.__setattr__(self, "_data_changed", False)
+        # one measure of the run's time, for the log line and the status bar alike
+        object.__setattr__(self, "last_run_seconds", time.perf_counter() - job.started)
         self.update({"result": result, "status": "done", "progress": None})
         keep = tuple(v for v in self.selection if v in result.variables)
         self.update({"selection": keep if len(keep) == len(self.selection) else ()})
@@ -708,15 +785,11 @@ class Session:
             if positions is None or set(positions) != set(self.variables):
                 positions = self._arranged()
             self.update({"positions": positions})
+            self._laid_out()
         else:
             self._ensure_positions()
-        c = result.counts
-        elapsed = time.perf_counter() - job.started
-        self.append_log(
-            f"run {job.run_id} done in {elapsed:.2f} s: {c.get('edges', 0)} edges "
-            f"({c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
-            f"{c.get('contested', 0)} contested); {c.get('tests', 0)} tests, "
-            f"{c.get('tests_from_cache', 0)} from the cache")
+        self.append_log(f"run {job.run_id} done in {self.last_run_seconds:.2f} s: "
+                        + run_counts(result))
         for text in list(warnings_seen) + list(result.conflicts) + list(result.notes):
             self.append_log(f"note: {text}")
         return True
@@ -825,22 +898,26 @@ class Session:
         object.__setattr__(self, "_job", None)
         object.__setattr__(self, "_result_key", state.pop("result_key"))
         object.__setattr__(self, "_auto_layout", not state["positions"])
+        object.__setattr__(self, "_data_changed", bool(state.pop("stale", False))
+                           and state["result"] is not None)
+        object.__setattr__(self, "last_run_seconds", None)
         session_path = state.pop("session_path")
         state.update({"status": "done" if state["result"] is not None else "idle",
                       "progress": None,
                       "session_path": None if recovered else str(Path(path).resolve())})
         if recovered:
             state["session_path"] = session_path
+        state["layouts"] = self.layouts + 1
         self.update(state)
         self._ensure_positions()
-        self.update({"stale": self._compute_stale() or bool(state.get("stale"))})
+        self.update({"stale": self._compute_stale()})
         self.update({"dirty": recovered})
         object.__setattr__(self, "_autosaved_generation", self._generation)
         self.append_log(("recovered the autosaved session" if recovered
                          else f"session opened from {path}"))
         for text in warns:
             self.append_log(f"warning: {text}")
-            self.notifications.warning(text, title="Open session")
+            self.notifications.warning(window_words(text), title="Open session")
         return True
 
     # -- autosave and recovery ----------------------------------------------------------------
@@ -890,6 +967,15 @@ class Session:
         if self.autosave_path is None or not self.autosave_path.exists():
             return False
         return self.open_session(self.autosave_path, recovered=True)
+
+
+def run_counts(result: SearchResult) -> str:
+    """The counts of a result in words, as the run log and the status bar show them (the
+    engine's own ``counts``, nothing recounted)."""
+    c = result.counts
+    return (f"{c.get('edges', 0)} edges ({c.get('directed', 0)} directed, "
+            f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested); "
+            f"{c.get('tests', 0)} tests, {c.get('tests_from_cache', 0)} from the cache")
 
 
 def _write_atomic(path: Path, text: str) -> None:

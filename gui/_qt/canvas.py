@@ -2,11 +2,14 @@
 
 :class:`GraphCanvas` observes the session (result, positions, knowledge, overlay, selection,
 included variables) and sends clicks, drags and context-menu actions back to it. Nodes are
-white rounded rectangles with a slate border and a kind glyph; edges are slate — directed with
-a filled head, undirected without heads, contested dashed brick red with open heads at both
-ends. The knowledge overlay puts a deep-teal double bar across locked edges and shows
-forbidden pairs as faint dotted lines with a small cross. Stages are soft bands behind their
-nodes.
+white rounded rectangles with a slate border and a kind glyph; edges are slate and their ends
+are drawn from the edge's marks (``Edge.from_mark`` / ``Edge.to_mark``): an arrow is a filled
+head, a circle a small open ring, a tail nothing — so directed is solid with one filled head,
+undirected has no heads, bidirected (hidden-causes mode) has filled heads at both ends.
+Contested is our own mark: dashed brick red with a small break and a "?" badge in the middle,
+no heads (never open heads at both ends, which the field reads as bidirected). The knowledge
+overlay puts a deep-teal double bar across locked edges and shows forbidden pairs as faint
+dotted lines with a small cross. Stages are soft bands behind their nodes.
 """
 
 from __future__ import annotations
@@ -18,8 +21,8 @@ import numpy as np
 from PySide6.QtCore import QPointF, QRectF, Qt, Signal
 from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPainter,
                            QPainterPath, QPainterPathStroker, QPen, QPolygonF)
-from PySide6.QtWidgets import (QGraphicsItem, QGraphicsScene, QGraphicsView, QLabel, QMenu,
-                               QWidget)
+from PySide6.QtWidgets import (QCompleter, QGraphicsItem, QGraphicsScene, QGraphicsView,
+                               QLabel, QLineEdit, QMenu, QToolButton, QWidget)
 
 from . import style
 
@@ -72,113 +75,173 @@ def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: fl
     painter.restore()
 
 
-def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
-              forbidden_heads=(), hover: bool = False, selected: bool = False,
-              scale: float = 1.0, faded: bool = False, control: QPointF | None = None):
-    """Draw one mark from a to b.
+#: The end marks (at a, at b) of each edge kind, for callers that give a kind only. Drawing
+#: always goes by marks, so kinds a later search mode adds draw without a new code path.
+KIND_MARKS = {
+    "directed": ("tail", "arrow"), "undirected": ("tail", "tail"),
+    "contested": ("tail", "tail"), "locked": ("tail", "tail"),
+    "bidirected": ("arrow", "arrow"), "partially-directed": ("circle", "arrow"),
+    "nondirected": ("circle", "circle"), "partially-undirected": ("circle", "tail"),
+}
+RING_R = 4.0
+BADGE_R = 7.0
 
-    ``kind`` is ``directed`` (a → b), ``undirected``, ``contested``, ``forbidden`` (overlay),
-    ``pending-lock`` (a locked pair the current diagram does not have yet) or ``locked``
-    (legend sample: an undirected edge with the lock bar). ``forbidden_heads`` lists the ends
-    ("a" or "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the
-    edge is a quadratic curve through that control point (used to bend around a node).
-    """
-    if control is not None:
-        _draw_curved(painter, a, b, control, kind, locked=locked,
-                     forbidden_heads=forbidden_heads, hover=hover, selected=selected,
-                     scale=scale, faded=faded)
-        return
-    ux, uy, length = _unit(a, b)
-    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+
+def edge_text(edge) -> str:
+    """The edge in words, from its kind and marks: ``a → b``, ``a — b``,
+    ``a ?– b (contested)``, ``a ↔ b (bidirected)``, ``a o→ b`` …"""
+    a, b = edge.source, edge.target
+    if edge.kind == "contested":
+        return f"{a} ?– {b} (contested)"
+    middle = {("tail", "tail"): "—", ("tail", "arrow"): "→", ("arrow", "tail"): "←",
+              ("arrow", "arrow"): "↔", ("circle", "arrow"): "o→", ("arrow", "circle"): "←o",
+              ("circle", "circle"): "o–o", ("circle", "tail"): "o–",
+              ("tail", "circle"): "–o"}[_marks_of(edge)]
+    return f"{a} {middle} {b}" + (" (bidirected)" if middle == "↔" else "")
+
+
+def _marks_of(edge) -> tuple[str, str]:
+    from_mark = getattr(edge, "from_mark", None)
+    to_mark = getattr(edge, "to_mark", None)
+    if from_mark in ("tail", "arrow", "circle") and to_mark in ("tail", "arrow", "circle"):
+        return from_mark, to_mark
+    return KIND_MARKS.get(edge.kind, ("tail", "tail"))
+
+
+def _ring(painter: QPainter, tip: QPointF, ux: float, uy: float, *, color: QColor,
+          scale: float):
+    """A small open ring touching ``tip``, on the line coming along (ux, uy)."""
+    r = RING_R * scale
+    centre = QPointF(tip.x() - ux * r, tip.y() - uy * r)
     painter.save()
-    painter.setRenderHint(QPainter.Antialiasing)
-    if faded:
-        painter.setOpacity(0.45)
-    if kind == "forbidden":
-        painter.setPen(QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap))
-        painter.drawLine(a, b)
-        _cross(painter, QPointF((a.x() + b.x()) / 2, (a.y() + b.y()) / 2), style.FORBIDDEN,
-               scale)
-    elif kind == "pending-lock":
-        painter.setPen(QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap))
-        painter.drawLine(a, b)
-        _double_bar(painter, a, b, scale)
-    else:
-        color = style.CONTESTED if kind == "contested" else style.SLATE
-        if selected:
-            halo = QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine, Qt.RoundCap)
-            painter.setPen(halo)
-            painter.drawLine(a, b)
-        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
-                   Qt.FlatCap)
-        if kind == "contested":
-            pen.setDashPattern([5, 3])
-        painter.setPen(pen)
-        inset_b = ARROW_LEN * scale * 0.8 if kind in ("directed", "contested") else 0
-        inset_a = ARROW_LEN * scale * 0.8 if kind == "contested" else 0
-        painter.drawLine(QPointF(a.x() + ux * inset_a, a.y() + uy * inset_a),
-                         QPointF(b.x() - ux * inset_b, b.y() - uy * inset_b))
-        if kind == "directed":
-            _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
-        elif kind == "contested":
-            _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
-            _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
-        if locked or kind == "locked":
-            _double_bar(painter, a, b, scale)
-    for end in forbidden_heads:
-        tip, sx, sy = (b, -ux, -uy) if end == "b" else (a, ux, uy)
-        at = QPointF(tip.x() + sx * 20 * scale, tip.y() + sy * 20 * scale)
-        _cross(painter, at, style.TEAL, scale, 3.5)
+    painter.setPen(QPen(color, 1.3 * scale))
+    painter.setBrush(style.CANVAS)
+    painter.drawEllipse(centre, r, r)
     painter.restore()
 
 
-def _draw_curved(painter, a, b, c, kind, *, locked, forbidden_heads, hover, selected, scale,
-                 faded):
+def _badge(painter: QPainter, at: QPointF, scale: float):
+    """The contested badge: a "?" in a small ring of brick red at the edge's middle."""
+    r = BADGE_R * scale
+    painter.save()
+    painter.setOpacity(painter.opacity())
+    painter.setPen(QPen(style.CONTESTED, 1.2 * scale))
+    painter.setBrush(style.NODE_FILL)
+    painter.drawEllipse(at, r, r)
+    font = QFont(painter.font())
+    font.setPixelSize(max(6, round(11 * scale)))
+    font.setBold(True)
+    painter.setFont(font)
+    painter.drawText(QRectF(at.x() - r, at.y() - r, 2 * r, 2 * r), Qt.AlignCenter, "?")
+    painter.restore()
+
+
+def _end(painter, mark, tip, ux, uy, *, color, scale):
+    if mark == "arrow":
+        _head(painter, tip, ux, uy, filled=True, color=color, scale=scale)
+    elif mark == "circle":
+        _ring(painter, tip, ux, uy, color=color, scale=scale)
+
+
+def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=None,
+              locked: bool = False, forbidden_heads=(), hover: bool = False,
+              selected: bool = False, scale: float = 1.0, faded: bool = False,
+              control: QPointF | None = None, badge_t: float = 0.5):
+    """Draw one mark from a to b.
+
+    ``kind`` is an edge kind (``directed``, ``undirected``, ``contested``, and the
+    hidden-causes kinds ``bidirected``, ``partially-directed``, ``nondirected``,
+    ``partially-undirected``), ``forbidden`` (overlay), ``pending-lock`` (a locked pair the
+    current diagram does not have yet) or ``locked`` (legend sample: an undirected edge with
+    the lock bar). ``marks`` is the pair of end marks (at a, at b), each ``tail`` (nothing),
+    ``arrow`` (a filled head) or ``circle`` (a small open ring); by default they follow
+    ``kind`` (:data:`KIND_MARKS`). A contested edge is dashed brick red with a small break
+    and a "?" badge in its middle and never has heads (open heads at both ends would read as
+    a bidirected edge, a hidden common cause). ``forbidden_heads`` lists the ends ("a" or
+    "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the edge is
+    a quadratic curve through that control point (used to bend around a node). ``badge_t``
+    places the contested badge along the edge (0.5: the middle; moved when two badges would
+    touch).
+    """
     path = QPainterPath(a)
-    path.quadTo(c, b)
+    if control is None:
+        path.lineTo(b)
+    else:
+        path.quadTo(control, b)
+    if control is None:
+        ua = _unit(b, a)[:2]
+        ub = _unit(a, b)[:2]
+    else:
+        ua = _unit(control, a)[:2]
+        ub = _unit(control, b)[:2]
+    mid = path.pointAtPercent(0.5)
     width = (2.6 if selected else 1.9 if hover else 1.5) * scale
-    color = style.CONTESTED if kind == "contested" else style.SLATE
     painter.save()
     painter.setRenderHint(QPainter.Antialiasing)
     painter.setBrush(Qt.NoBrush)
     if faded:
         painter.setOpacity(0.45)
     if kind == "forbidden":
-        pen = QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap)
+        painter.setPen(QPen(style.FORBIDDEN, 1.2 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawPath(path)
+        _cross(painter, mid, style.FORBIDDEN, scale)
     elif kind == "pending-lock":
-        pen = QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap)
+        painter.setPen(QPen(style.TEAL, 1.3 * scale, Qt.DotLine, Qt.RoundCap))
+        painter.drawPath(path)
+        _double_bar(painter, *_span(path, mid), scale)
     else:
+        contested = kind == "contested"
+        color = style.CONTESTED if contested else style.SLATE
+        end_a, end_b = ("tail", "tail") if contested else (marks or KIND_MARKS.get(
+            kind, ("tail", "tail")))
+        if contested:  # a small break in the middle, where the badge sits
+            length = max(path.length(), 1.0)
+            gap = min(0.2, (BADGE_R + 4) * scale / length)
+            badge_t = min(max(badge_t, gap + 0.05), 0.95 - gap)
+            pieces = [_sub_path(path, 0.0, badge_t - gap), _sub_path(path, badge_t + gap, 1.0)]
+        else:
+            pieces = [path]
         if selected:
             painter.setPen(QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine,
                                 Qt.RoundCap))
             painter.drawPath(path)
-        pen = QPen(color, width, Qt.DashLine if kind == "contested" else Qt.SolidLine,
-                   Qt.FlatCap)
-        if kind == "contested":
+        pen = QPen(color, width, Qt.DashLine if contested else Qt.SolidLine, Qt.FlatCap)
+        if contested:
             pen.setDashPattern([5, 3])
-    painter.setPen(pen)
-    painter.drawPath(path)
-    mid = path.pointAtPercent(0.5)
-    tangent_a, tangent_b = QPointF(c - a), QPointF(b - c)
-    if kind == "directed":
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
-        _head(painter, b, ux, uy, filled=True, color=color, scale=scale)
-    elif kind == "contested":
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_b)
-        _head(painter, b, ux, uy, filled=False, color=color, scale=scale)
-        ux, uy, _ = _unit(QPointF(0, 0), tangent_a)
-        _head(painter, a, -ux, -uy, filled=False, color=color, scale=scale)
-    along = QPointF(b - a)
-    span = QPointF(mid.x() - along.x() * 0.05, mid.y() - along.y() * 0.05), \
-        QPointF(mid.x() + along.x() * 0.05, mid.y() + along.y() * 0.05)
-    if kind == "forbidden":
-        _cross(painter, mid, style.FORBIDDEN, scale)
-    if locked or kind in ("locked", "pending-lock"):
-        _double_bar(painter, *span, scale)
+        painter.setPen(pen)
+        for piece in pieces:
+            painter.drawPath(piece)
+        _end(painter, end_a, a, ua[0], ua[1], color=color, scale=scale)
+        _end(painter, end_b, b, ub[0], ub[1], color=color, scale=scale)
+        if contested:
+            _badge(painter, path.pointAtPercent(badge_t), scale)
+        if locked or kind == "locked":
+            _double_bar(painter, *_span(path, mid, 0.12 if contested else 0.0), scale)
     for end in forbidden_heads:
-        t = 0.85 if end == "b" else 0.15
+        t = _percent_at_distance(path, 20 * scale, from_end=end == "b")
         _cross(painter, path.pointAtPercent(t), style.TEAL, scale, 3.5)
     painter.restore()
+
+
+def _sub_path(path: QPainterPath, t0: float, t1: float, steps: int = 24) -> QPainterPath:
+    """The part of ``path`` between percents t0 and t1, as a polyline."""
+    out = QPainterPath(path.pointAtPercent(t0))
+    for i in range(1, steps + 1):
+        out.lineTo(path.pointAtPercent(t0 + (t1 - t0) * i / steps))
+    return out
+
+
+def _span(path: QPainterPath, mid: QPointF, shift: float = 0.0):
+    """A short stretch of the path around its middle (where the lock bar goes), moved by
+    ``shift`` of the length (so that the bar clears the contested badge)."""
+    lo, hi = 0.45 + shift, 0.55 + shift
+    return path.pointAtPercent(lo), path.pointAtPercent(hi)
+
+
+def _percent_at_distance(path: QPainterPath, distance: float, *, from_end: bool) -> float:
+    length = max(path.length(), 1.0)
+    t = min(0.45, distance / length)
+    return 1.0 - t if from_end else t
 
 
 def _crosses_box(p: QPointF, q: QPointF, box: QRectF) -> bool:
@@ -350,6 +413,8 @@ class EdgeItem(QGraphicsItem):
         self.edge = edge
         self.source, self.target = edge.source, edge.target
         self.kind = edge.kind
+        self.marks = _marks_of(edge)
+        self.badge_t = 0.5
         self.locked = locked
         self.forbidden_heads = tuple(forbidden_heads)
         self.faded = faded
@@ -375,7 +440,7 @@ class EdgeItem(QGraphicsItem):
                     else f"decisive p-value {p:.3g} (largest of {e.tests} tests; "
                          f"kept because below α)")
         why = e.reason or "direction not determined by the data"
-        lines = [e.arrow(), decisive, why]
+        lines = [edge_text(e), decisive, why]
         if self.locked:
             lines.append("locked by knowledge")
         return "\n".join(lines)
@@ -408,10 +473,11 @@ class EdgeItem(QGraphicsItem):
 
     def paint(self, painter: QPainter, option, widget=None):
         overlay = self.canvas.session.overlay
-        draw_edge(painter, self.p1, self.p2, self.kind, locked=self.locked and overlay,
+        draw_edge(painter, self.p1, self.p2, self.kind, marks=self.marks,
+                  locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
                   hover=self.hover, selected=self.selected, faded=self.faded,
-                  control=self.control)
+                  control=self.control, badge_t=self.badge_t)
 
     def hoverEnterEvent(self, event):
         self.hover = True
@@ -506,17 +572,57 @@ class StageBand(QGraphicsItem):
 # ----------------------------------------------------------------------------- legend
 
 class Legend(QWidget):
-    """A small key of the marks in the canvas corner."""
+    """A small key of the marks in the canvas corner; a click on it folds it to its title
+    (and back).
+
+    The first rows are always there; the marks of the hidden-causes mode (bidirected,
+    circle ends) get a row when the diagram has them (:meth:`set_kinds`).
+    """
 
     ROWS = (("directed", "directed"), ("undirected", "undirected"),
-            ("contested", "contested"), ("locked", "locked (knowledge)"),
+            ("contested", "contested (?)"), ("locked", "locked (knowledge)"),
             ("forbidden", "forbidden (knowledge)"))
+    EXTRA_ROWS = (("bidirected", "bidirected (hidden cause)"),
+                  ("partially-directed", "circle: mark undecided"),
+                  ("nondirected", "circle at both ends"),
+                  ("partially-undirected", "circle and tail"))
+    ROW_H = 18
+    TITLE_H = 20
 
     def __init__(self, parent):
         super().__init__(parent)
         self.setObjectName("canvasLegend")
-        self.setAttribute(Qt.WA_TransparentForMouseEvents)
-        self.setFixedSize(190, 18 * len(self.ROWS) + 12)
+        self.setCursor(Qt.PointingHandCursor)
+        self.collapsed = False
+        self.rows = list(self.ROWS)
+        self._resize()
+
+    def set_kinds(self, kinds) -> None:
+        """Show a row for each extra kind in ``kinds``."""
+        rows = list(self.ROWS) + [r for r in self.EXTRA_ROWS if r[0] in set(kinds)]
+        if rows != self.rows:
+            self.rows = rows
+            self._resize()
+
+    def set_collapsed(self, collapsed: bool) -> None:
+        self.collapsed = bool(collapsed)
+        self._resize()
+
+    def _resize(self):
+        rows = 0 if self.collapsed else len(self.rows)
+        self.setFixedSize(self.collapsed and 70 or 200,
+                          self.TITLE_H + self.ROW_H * rows + (6 if rows else 0))
+        self.setToolTip("Click to unfold the key" if self.collapsed
+                        else "Click to fold the key away")
+        self.update()
+        parent = self.parent()
+        if parent is not None and getattr(parent, "legend", None) is self:
+            parent._place_overlays()
+
+    def mousePressEvent(self, event):
+        if event.button() == Qt.LeftButton:
+            self.set_collapsed(not self.collapsed)
+            event.accept()
 
     def paintEvent(self, event):
         p = QPainter(self)
@@ -527,11 +633,16 @@ class Legend(QWidget):
         font = QFont(self.font())
         font.setPointSizeF(8.5)
         p.setFont(font)
-        for i, (mark, text) in enumerate(self.ROWS):
-            y = 14 + i * 18
-            draw_edge(p, QPointF(10, y), QPointF(52, y), mark, scale=0.8)
+        p.setPen(style.SLATE)
+        p.drawText(QRectF(10, 0, self.width() - 14, self.TITLE_H), Qt.AlignVCenter,
+                   ("▸ Key" if self.collapsed else "▾ Key"))
+        if self.collapsed:
+            return
+        for i, (mark, text) in enumerate(self.rows):
+            y = self.TITLE_H + 6 + i * self.ROW_H
+            draw_edge(p, QPointF(10, y), QPointF(58, y), mark, scale=0.8)
             p.setPen(style.SLATE)
-            p.drawText(QRectF(60, y - 9, 128, 18), Qt.AlignVCenter, text)
+            p.drawText(QRectF(66, y - 9, self.width() - 70, 18), Qt.AlignVCenter, text)
 
 
 # ----------------------------------------------------------------------------- the view
@@ -545,6 +656,8 @@ class GraphCanvas(QGraphicsView):
     """
 
     zoomed = Signal(float)
+    #: the variable the view is focused on (find, Ctrl+F), or "" when the focus ends
+    focused_on = Signal(str)
 
     def __init__(self, session, parent=None):
         super().__init__(parent)
@@ -584,6 +697,18 @@ class GraphCanvas(QGraphicsView):
         self.hint.setObjectName("canvasHint")
         self.hint.setAlignment(Qt.AlignCenter)
         self.legend = Legend(self)
+        self.focused = None
+        self.find_box = QLineEdit(self)
+        self.find_box.setObjectName("findBox")
+        self.find_box.setPlaceholderText("Find a variable… (Enter: focus, Esc: close)")
+        self.find_box.setClearButtonEnabled(True)
+        for button in self.find_box.findChildren(QToolButton):
+            button.setObjectName("findClear")
+        self.find_box.setFixedWidth(280)
+        self.find_box.returnPressed.connect(self._find_entered)
+        self.find_box.installEventFilter(self)
+        self.find_box.hide()
+        self.find_message = ""
 
         ev = session.events
         ev.result.connect(self._on_structure)
@@ -592,6 +717,7 @@ class GraphCanvas(QGraphicsView):
         ev.knowledge.connect(self._on_knowledge)
         ev.overlay.connect(self._on_overlay)
         ev.positions.connect(self._on_positions)
+        ev.layouts.connect(lambda _: self.request_fit())
         ev.selection.connect(self._on_selection)
         ev.stale.connect(self._on_banner)
         ev.status.connect(self._on_banner)
@@ -637,6 +763,8 @@ class GraphCanvas(QGraphicsView):
                 node.setPos(QPointF(*xy))
                 self.scene_.addItem(node)
                 self.nodes[name] = node
+            # the layouts use the sizes as drawn (the session is Qt-free and cannot measure)
+            s.node_sizes = {name: (n.width, NODE_H) for name, n in self.nodes.items()}
             self._build_edges()
             self._build_overlay()
             self._update_bands()
@@ -645,6 +773,16 @@ class GraphCanvas(QGraphicsView):
             self._refreshing = False
         self._on_banner()
         self._update_scene_rect()
+        names = list(s.variables)
+        completer = QCompleter(names, self.find_box)
+        completer.setCaseSensitivity(Qt.CaseInsensitive)
+        completer.setFilterMode(Qt.MatchContains)
+        self.find_box.setCompleter(completer)
+        if self.focused is not None:
+            if self.focused in self.nodes:
+                self._dim_around(self.focused)
+            else:
+                self.clear_focus()
         if self._fit_pending and self.nodes:
             self.fit()
 
@@ -676,6 +814,8 @@ class GraphCanvas(QGraphicsView):
                             forbidden_heads=self._forbidden_heads(e), faded=s.stale)
             self.scene_.addItem(item)
             self.edges[e.pair] = item
+        self.legend.set_kinds({e.kind for e in s.result.edges})
+        self._place_badges()
 
     def _build_overlay(self):
         s = self.session
@@ -730,10 +870,13 @@ class GraphCanvas(QGraphicsView):
         if moved:
             for item in self.edges.values():  # bends depend on every node's place
                 item.update_geometry()
+            self._place_badges()
         self._update_bands()
         self._update_scene_rect()
 
     def _on_selection(self, selection):
+        if self.focused is not None and self.focused not in selection:
+            self.clear_focus()
         chosen = set(selection)
         for name, node in self.nodes.items():
             on = name in chosen and len(chosen) == 1 or (len(chosen) == 2 and name in chosen)
@@ -745,6 +888,34 @@ class GraphCanvas(QGraphicsView):
             on = key == pair
             if item.selected != on:
                 item.selected = on
+                item.update()
+
+    def _place_badges(self):
+        """Move a contested badge off its edge's middle when it would touch another badge
+        (two contested edges that cross near their middles). Short edges keep their
+        middles; longer ones, which have room, give way."""
+        paths = []
+        for item in self.edges.values():
+            if item.kind != "contested":
+                continue
+            path = QPainterPath(item.p1)
+            if item.control is None:
+                path.lineTo(item.p2)
+            else:
+                path.quadTo(item.control, item.p2)
+            paths.append((path.length(), id(item), item, path))
+        placed = []
+        for _, _, item, path in sorted(paths, key=lambda p: p[:2]):
+            def room(t):
+                at = path.pointAtPercent(t)
+                return min((math.hypot(at.x() - q.x(), at.y() - q.y()) for q in placed),
+                           default=math.inf)
+            candidates = (0.5, 0.38, 0.62, 0.28, 0.72)
+            best = next((t for t in candidates if room(t) > 3 * BADGE_R),
+                        max(candidates, key=room))
+            placed.append(path.pointAtPercent(best))
+            if item.badge_t != best:
+                item.badge_t = best
                 item.update()
 
     def _update_bands(self):
@@ -776,6 +947,10 @@ class GraphCanvas(QGraphicsView):
         text = ""
         if s.status in ("running", "stopping") and s.result is not None:
             text = "Searching… the diagram below is the previous result."
+        elif s.data_changed:
+            text = ("The data file changed since this result was saved (its fingerprint "
+                    "differs): the diagram is the saved one, faded. Press Run (Ctrl+R) to "
+                    "search the current data.")
         elif s.stale and s.result is not None:
             text = ("This diagram was found with other settings, knowledge or variables. "
                     "Run (Ctrl+R) to bring it up to date.")
@@ -808,12 +983,16 @@ class GraphCanvas(QGraphicsView):
         top = vp.y() + (56 if self.nodes else vp.height() // 2 + 40)
         self.hint.setGeometry(vp.x(), top, vp.width(), 30)
         self.legend.move(vp.x() + 10, vp.y() + vp.height() - self.legend.height() - 10)
-        for w in (self.banner, self.hint, self.legend):
+        self.find_box.move(vp.x() + vp.width() - self.find_box.width() - 12, vp.y() + 12)
+        for w in (self.banner, self.hint, self.legend, self.find_box):
             w.raise_()
 
     def resizeEvent(self, event):
         super().resizeEvent(event)
         self._place_overlays()
+        vp = self.viewport()
+        if vp.width() > 100 and vp.height() > 100:
+            self.session.view_aspect = vp.width() / vp.height()
 
     def showEvent(self, event):
         super().showEvent(event)
@@ -845,6 +1024,7 @@ class GraphCanvas(QGraphicsView):
         if now != before:
             for item in self.edges.values():  # other edges may now bend, or not
                 item.update_geometry()
+            self._place_badges()
             self.session.move_nodes({node.name: now}, label=f"Move {node.name}")
 
     def mousePressEvent(self, event):
@@ -870,20 +1050,162 @@ class GraphCanvas(QGraphicsView):
         rect = QRectF()
         for item in list(self.nodes.values()) + self.bands:
             rect = rect.united(item.sceneBoundingRect())
-        rect = rect.adjusted(-40, -60, 40, 40)
         if self.viewport().width() < 50:
             return
         self._fit_pending = False
-        self.fitInView(rect, Qt.KeepAspectRatio)
-        if self.transform().m11() > 1.25:
+        self._fit_rect(rect)
+
+    def _fit_rect(self, rect: QRectF):
+        """Show ``rect`` whole (never zooming in past 1.25×), clear of the key in the
+        corner: if the key would cover a node, the drawing goes above it or beside it,
+        whichever keeps it larger."""
+        rect = rect.adjusted(-30, -50, 30, 20)
+        vp = self.viewport().rect()
+
+        def zoom_for(left, below):
+            return min(max(vp.width() - 16 - left, 40) / max(rect.width(), 1.0),
+                       max(vp.height() - 8 - below, 40) / max(rect.height(), 1.0), 1.25)
+
+        def apply(left, below):
+            zoom = zoom_for(left, below)
             self.resetTransform()
-            self.scale(1.25, 1.25)
-            self.centerOn(rect.center())
+            self.scale(zoom, zoom)
+            centre = rect.center()
+            self.centerOn(QPointF(centre.x() - left / 2 / zoom, centre.y() + below / 2 / zoom))
+
+        apply(0, 0)
+        if self._key_covers_a_node():
+            def room():
+                key_w, key_h = self.legend.width() + 16, self.legend.height() + 16
+                return max(((key_w, 0), (0, key_h)), key=lambda lb: zoom_for(*lb))
+            if zoom_for(*room()) < 0.92 * zoom_for(0, 0) and not self.legend.collapsed:
+                self.legend.set_collapsed(True)  # a big diagram needs the room more
+            apply(*room())
         self.zoomed.emit(self.transform().m11())
+
+    def _key_covers_a_node(self) -> bool:
+        if not self.legend.isVisible():
+            return False
+        key = self.legend.geometry().translated(-self.viewport().x(), -self.viewport().y())
+        area = self.mapToScene(key).boundingRect()
+        return any(area.intersects(n.sceneBoundingRect()) for n in self.nodes.values())
 
     def request_fit(self):
         self._fit_pending = True
         self.fit()
+
+    def readability(self) -> dict:
+        """How the diagram reads at the current zoom: ``zoom``, ``label_px`` (the height of a
+        node label's text on screen, in pixels), ``overlapping_boxes`` (pairs of node boxes
+        that overlap), ``shortest_edge_px`` (the shortest edge between the boxes it joins,
+        on screen) and ``nodes_in_view`` (how many node boxes lie wholly in the view)."""
+        zoom = self.transform().m11()
+        metrics = QFontMetricsF(self.node_font)
+        boxes = [n.mapRectToScene(n.rect) for n in self.nodes.values()]
+        overlapping = sum(1 for i, a in enumerate(boxes) for b in boxes[i + 1:]
+                          if a.intersects(b))
+        lengths = []
+        for item in self.edges.values():
+            path = QPainterPath(item.p1)
+            if item.control is None:
+                path.lineTo(item.p2)
+            else:
+                path.quadTo(item.control, item.p2)
+            lengths.append(path.length())
+        view = self.mapToScene(self.viewport().rect()).boundingRect()
+        return {"zoom": zoom, "label_px": metrics.height() * zoom,
+                "overlapping_boxes": overlapping,
+                "shortest_edge_px": min(lengths) * zoom if lengths else None,
+                "nodes_in_view": sum(1 for b in boxes if view.contains(b)),
+                "nodes": len(boxes)}
+
+    # -- find and focus ----------------------------------------------------------------------
+    def neighbours(self, name: str) -> set:
+        """The variables that share an edge of the diagram with ``name``."""
+        return {v for key in self.edges if name in key for v in key} - {name}
+
+    def focus_on(self, name: str) -> bool:
+        """Select ``name``, fade everything but it, its neighbours and their edges, and fit
+        the view to that neighbourhood. False when there is no such variable."""
+        node = self.nodes.get(name)
+        if node is None:
+            return False
+        self.focused = name
+        self.session.select_node(name)
+        self._dim_around(name)
+        rect = QRectF()
+        for v in self.neighbours(name) | {name}:
+            rect = rect.united(self.nodes[v].sceneBoundingRect())
+        self._fit_rect(rect)
+        self.focused_on.emit(name)
+        return True
+
+    def _dim_around(self, name: str):
+        near = self.neighbours(name) | {name}
+        for v, item in self.nodes.items():
+            item.setOpacity(1.0 if v in near else 0.2)
+        for key, item in self.edges.items():
+            item.setOpacity(1.0 if name in key else 0.12)
+        for item in self.overlays:
+            item.setOpacity(1.0 if name in (item.source, item.target) else 0.12)
+
+    def clear_focus(self):
+        """End the focus: everything drawn at full strength again."""
+        if self.focused is None:
+            return
+        self.focused = None
+        for item in list(self.nodes.values()) + list(self.edges.values()) + self.overlays:
+            item.setOpacity(1.0)
+        self.focused_on.emit("")
+
+    def show_find(self):
+        """Show the find box (Ctrl+F) with the keyboard in it."""
+        self._place_overlays()
+        self.find_box.show()
+        self.find_box.raise_()
+        self.find_box.setFocus()
+        self.find_box.selectAll()
+
+    def find(self, text: str) -> str | None:
+        """The variable ``text`` names: an exact name (any case), else the only name that
+        contains it, else the first name that starts with it; None when none does."""
+        text = text.strip()
+        if not text:
+            return None
+        names = list(self.nodes)
+        low = text.lower()
+        exact = [n for n in names if n.lower() == low]
+        if exact:
+            return exact[0]
+        contains = [n for n in names if low in n.lower()]
+        if len(contains) == 1:
+            return contains[0]
+        starts = [n for n in names if n.lower().startswith(low)]
+        return starts[0] if starts else None
+
+    def _find_entered(self):
+        text = self.find_box.text()
+        name = self.find(text)
+        if name is None:
+            self.find_message = (f"no variable matches {text.strip()!r}; type part of a name "
+                                 "(the list under the box shows the matches)")
+            self.session.notifications.info(self.find_message, title="Find")
+            return
+        self.find_message = ""
+        self.focus_on(name)
+
+    def eventFilter(self, watched, event):
+        if watched is self.find_box and event.type() == event.Type.ShortcutOverride \
+                and event.key() == Qt.Key_Escape:
+            event.accept()  # Esc in the box closes it, it does not stop a search
+            return True
+        if watched is self.find_box and event.type() == event.Type.KeyPress \
+                and event.key() == Qt.Key_Escape:
+            self.find_box.hide()
+            self.clear_focus()
+            self.setFocus()
+            return True
+        return super().eventFilter(watched, event)
 
     def contextMenuEvent(self, event):
         item = self.itemAt(event.pos())
@@ -928,8 +1250,14 @@ class GraphCanvas(QGraphicsView):
                     act.triggered.connect(
                         lambda _=False, n=item.name, inc=inc: s.set_included(n, not inc))
         else:
-            for text, slot in (("Arrange", s.arrange), ("Fit to view", self.request_fit)):
-                menu.addAction(text).triggered.connect(slot)
+            for text, slot in (("Arrange again", lambda: s.arrange()),
+                               ("Arrange (layered by stage, else force-directed)",
+                                lambda: s.arrange("auto")),
+                               ("Arrange in layers", lambda: s.arrange("layered")),
+                               ("Arrange force-directed", lambda: s.arrange("force")),
+                               ("Fit to view", self.request_fit),
+                               ("Find a variable… (Ctrl+F)", self.show_find)):
+                menu.addAction(text).triggered.connect(lambda _=False, f=slot: f())
             act = menu.addAction("Knowledge overlay")
             act.setCheckable(True)
             act.setChecked(s.overlay)

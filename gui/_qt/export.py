@@ -63,11 +63,16 @@ def export(session, canvas, kind: str, path) -> Path:
             scale = 2.0
             image = QImage(QSize(int(source.width() * scale), int(source.height() * scale)),
                            QImage.Format_ARGB32)
-            image.setDotsPerMeterX(int(96 * scale / 0.0254))
-            image.setDotsPerMeterY(int(96 * scale / 0.0254))
+            # paint at the screen's 96 dpi: fonts are sized in points, so an image that
+            # said 192 dpi while painting would draw every label twice too large (and cut
+            # it off at its box); the painter's scale alone doubles the resolution
+            image.setDotsPerMeterX(round(96 / 0.0254))
+            image.setDotsPerMeterY(round(96 / 0.0254))
             painter = QPainter(image)
             _render(canvas, painter, QRectF(0, 0, image.width(), image.height()), source)
             painter.end()
+            image.setDotsPerMeterX(round(96 * scale / 0.0254))  # what the file says
+            image.setDotsPerMeterY(round(96 * scale / 0.0254))
             if not image.save(str(path)):
                 raise OSError("the image could not be written")
         elif kind == "svg":

@@ -17,7 +17,9 @@ from PySide6.QtWidgets import (QAbstractItemView, QGridLayout, QHeaderView, QLab
                                QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout,
                                QWidget)
 
+from .._words import test_label
 from . import style
+from .canvas import edge_text
 
 
 def _p(p) -> str:
@@ -182,14 +184,19 @@ class Inspector(QWidget):
         notes = r.summary().notes()
         st = r.settings
         html = [f"<p>{len(r.variables)} variables, {r.data.get('rows', '?')} rows<br>"
-                f"test <b>{escape(st.test)}</b>, α = {st.alpha:g}, depth "
+                f"test <b>{escape(test_label(st.test))}</b> "
+                f"(<span style='color:#6B7178'>{escape(st.test)}</span>), "
+                f"α = {st.alpha:g}, depth "
                 f"{'no limit' if st.max_depth is None else st.max_depth}, "
                 f"collider rule {escape(st.collider_rule)}</p>",
                 f"<p><b>{c.get('edges', 0)}</b> edges: {c.get('directed', 0)} directed, "
                 f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested<br>"
                 f"{c.get('removed', 0)} pairs removed; {c.get('tests', 0)} tests "
                 f"({c.get('tests_from_cache', 0)} from the cache)</p>"]
-        if s.stale:
+        if s.data_changed:
+            html.append("<p style='color:#8A6D3B'>The data file changed since this result "
+                        "was found: run again to search the current data.</p>")
+        elif s.stale:
             html.append("<p style='color:#8A6D3B'>Inputs changed since this result: run "
                         "again to update it.</p>")
         if notes:
@@ -261,8 +268,11 @@ class Inspector(QWidget):
             e = evidence.edge
             if e is not None:
                 colour = "#B5482F" if e.kind == "contested" else "#1B232B"
+                words = edge_text(e)  # from the marks; contested reads "a ?– b (contested)"
+                if not words.endswith(")"):
+                    words += f" ({e.kind})"
                 html.append(f"<p style='font-size:13px; color:{colour}'><b>"
-                            f"{escape(e.arrow())}</b> ({e.kind})</p>")
+                            f"{escape(words)}</b></p>")
                 if e.kind == "undirected":
                     html.append("<p>Direction: not determined by the data — both directions "
                                 "fit the independence pattern equally well.</p>")
@@ -296,8 +306,10 @@ class Inspector(QWidget):
             html.append("<p style='color:#6B7178'>One of these variables was not in the last "
                         "search.</p>")
         if s.stale and r is not None:
-            html.append("<p style='color:#8A6D3B'>Inputs changed since this result; run again "
-                        "to update the evidence.</p>")
+            html.append("<p style='color:#8A6D3B'>"
+                        + ("The data file changed since this result" if s.data_changed
+                           else "Inputs changed since this result")
+                        + "; run again to update the evidence.</p>")
         html.append("<p><b>Knowledge</b>: " + (escape("; ".join(statements)) if statements
                                                else "none about this pair") + "</p>")
         self.body.setText("".join(html))

@@ -50,6 +50,10 @@ QPushButton:hover { border-color: #44505C; }
 QPushButton:disabled { color: #A8ADB2; border-color: #E2DFD8; }
 QPushButton#runButton { background: #44505C; color: white; border-color: #44505C;
     font-weight: 600; }
+QPushButton#runButton:disabled { background: #E9E7E2; color: #A8ADB2; border-color: #DAD7D0;
+    font-weight: 600; }
+QPushButton#statusAssumptions { border: none; color: #1F6F78; text-decoration: underline;
+    padding: 0 8px; background: transparent; }
 QLabel#staleBanner { background: rgba(255, 248, 230, 235); color: #6B5226;
     border: 1px solid #E6D3A8; border-radius: 4px; padding: 6px 10px; }
 QLabel#canvasHint { color: #8A8F94; font-size: 15px; }

@@ -24,6 +24,7 @@ from discovery.result import ASSUMPTIONS
 from discovery.settings import PARAMETERS
 
 from .. import _session
+from .._words import test_label
 from . import export as _export
 from . import style
 from .canvas import GraphCanvas
@@ -48,7 +49,8 @@ SHORTCUTS = (
     ("Ctrl+R or F5", "run the search"), ("Esc", "stop the search"),
     ("Ctrl+Z / Ctrl+Shift+Z", "undo / redo a knowledge edit or node move"),
     ("Ctrl+0", "fit the diagram to the view"), ("Ctrl++ / Ctrl+-", "zoom in / out"),
-    ("Ctrl+L", "arrange (layered by stage, else force-directed)"),
+    ("Ctrl+L", "arrange again (View → Arrange as: layers or force-directed)"),
+    ("Ctrl+F", "find a variable and focus on its neighbours (Esc ends the focus)"),
     ("Ctrl+K", "knowledge overlay on/off"), ("Ctrl+E", "export…"),
     ("L / F / Delete", "lock / forbid / clear the selected pair"),
     ("F1", "assumptions and cautions"),
@@ -65,6 +67,18 @@ def slider_to_alpha(position: int) -> float:
     lo, hi = (math.log10(v) for v in ALPHA_SLIDER_RANGE)
     value = 10 ** (lo + (hi - lo) * position / _SLIDER_STEPS)
     return float(f"{value:.2g}")
+
+
+#: Data file names that say nothing by themselves: the title adds their folder.
+_GENERIC_STEMS = {"data", "table", "export", "dataset", "raw", "input"}
+
+
+def _data_title(path) -> str:
+    """The data file's name for the title; ``greenhouse/data.csv`` for a generic name."""
+    path = Path(path)
+    if path.stem.lower() in _GENERIC_STEMS and path.parent.name:
+        return f"{path.parent.name}/{path.name}"
+    return path.name
 
 
 class AssumptionsDialog(QDialog):
@@ -220,7 +234,19 @@ class MainWindow(QMainWindow):
         self.act_zoom_out = a("actionZoomOut", "Zoom out", lambda: self.canvas.zoom(0.8),
                               "Ctrl+-")
         self.act_arrange = a("actionArrange", "Arrange", s.arrange, "Ctrl+L",
-                             "Lay the diagram out again: layered by stage, else force-directed")
+                             "Lay the diagram out again, in the layout chosen last (at first: "
+                             "layered by stage, else force-directed)")
+        self.act_arrange_auto = a("actionArrangeAuto", "Layered by stage, else force-directed",
+                                  lambda: s.arrange("auto"))
+        self.act_arrange_layered = a("actionArrangeLayered", "In layers (by stage, else by "
+                                     "arrow direction)", lambda: s.arrange("layered"),
+                                     None, "Columns left to right: stages, or without stages "
+                                     "the arrows' direction (every arrow points right)")
+        self.act_arrange_force = a("actionArrangeForce", "Force-directed",
+                                   lambda: s.arrange("force"))
+        self.act_find = a("actionFind", "Find a variable…", self.canvas.show_find,
+                          QKeySequence.Find, "Find a variable by name and focus on its "
+                                             "neighbours (Esc in the box ends the focus)")
         self.act_overlay = a("actionOverlay", "Overlay",
                              lambda on: setattr(s, "overlay", on), "Ctrl+K",
                              "Show locked and forbidden pairs on the diagram", checkable=True)
@@ -275,9 +301,11 @@ class MainWindow(QMainWindow):
         self.test_choice = QComboBox()
         self.test_choice.setObjectName("testChoice")
         for name, desc in TEST_NAMES.items():
-            self.test_choice.addItem(name, name)
-            self.test_choice.setItemData(self.test_choice.count() - 1, desc, Qt.ToolTipRole)
+            self.test_choice.addItem(test_label(name), name)
+            self.test_choice.setItemData(self.test_choice.count() - 1, f"{name}: {desc}",
+                                         Qt.ToolTipRole)
         self.test_choice.setToolTip("independence test")
+        self.test_choice.currentIndexChanged.connect(self._test_tooltip)
         self.test_choice.currentIndexChanged.connect(
             lambda i: self.session.set_setting("test", self.test_choice.itemData(i)))
         tb.addWidget(self.test_choice)
@@ -323,6 +351,13 @@ class MainWindow(QMainWindow):
         tb.addSeparator()
         add(self.act_auto, "autoRunToggle")
         add(self.act_arrange, "arrangeButton")
+        self.arrange_menu = QMenu(self)
+        self.arrange_menu.setObjectName("arrangeMenu")
+        for act in (self.act_arrange_auto, self.act_arrange_layered, self.act_arrange_force):
+            self.arrange_menu.addAction(act)
+        arrange_button = tb.widgetForAction(self.act_arrange)
+        arrange_button.setMenu(self.arrange_menu)
+        arrange_button.setPopupMode(QToolButton.MenuButtonPopup)
         add(self.act_fit, "fitButton")
         add(self.act_overlay, "overlayToggle")
         tb.addSeparator()
@@ -409,9 +444,14 @@ class MainWindow(QMainWindow):
         for act in (self.act_run, self.act_stop, self.act_auto):
             m.addAction(act)
         m = bar.addMenu("&View")
-        for act in (self.act_fit, self.act_zoom_in, self.act_zoom_out, self.act_arrange,
-                    self.act_overlay):
+        for act in (self.act_fit, self.act_zoom_in, self.act_zoom_out, self.act_find,
+                    self.act_arrange):
             m.addAction(act)
+        arrange = m.addMenu("Arrange as")
+        arrange.setObjectName("arrangeAsMenu")
+        for act in (self.act_arrange_auto, self.act_arrange_layered, self.act_arrange_force):
+            arrange.addAction(act)
+        m.addAction(self.act_overlay)
         m.addSeparator()
         for dock in (self.variables_dock, self.stages_dock, self.inspector_dock,
                      self.log_dock):
@@ -439,6 +479,14 @@ class MainWindow(QMainWindow):
         self.cancel_button.setObjectName("statusCancel")
         self.cancel_button.clicked.connect(self.stop)
         sb.addPermanentWidget(self.cancel_button)
+        # the assumptions note is one click away whatever the window's width (the toolbar's
+        # own button can be pushed into its overflow menu)
+        self.status_assumptions = QPushButton("Assumptions and cautions (F1)")
+        self.status_assumptions.setObjectName("statusAssumptions")
+        self.status_assumptions.setFlat(True)
+        self.status_assumptions.setToolTip("The assumptions under which the diagram is sound")
+        self.status_assumptions.clicked.connect(self.show_assumptions)
+        sb.addPermanentWidget(self.status_assumptions)
         self.progress_bar.hide()
         self.cancel_button.hide()
 
@@ -447,6 +495,7 @@ class MainWindow(QMainWindow):
         with signals_blocked(self.test_choice, self.alpha_slider, self.alpha_box,
                              self.depth_box, self.collider_choice):
             self.test_choice.setCurrentIndex(max(0, self.test_choice.findData(settings.test)))
+            self._test_tooltip(self.test_choice.currentIndex())
             self.alpha_slider.setValue(alpha_to_slider(settings.alpha))
             self.alpha_box.setText(f"{settings.alpha:g}")
             self.depth_box.setValue(self._depth_none if settings.max_depth is None
@@ -473,9 +522,10 @@ class MainWindow(QMainWindow):
                 "failed": "The run failed — see the message and the run log"}[status]
         if status == "done" and self.session.result is not None:
             r = self.session.result
-            text = (f"Done: {len(r.edges)} edges, {r.counts.get('tests', 0)} tests "
-                    f"({r.counts.get('tests_from_cache', 0)} from the cache) in "
-                    f"{r.timings.get('total_s', 0):.2f} s")
+            seconds = self.session.last_run_seconds
+            text = f"Done: {_session.run_counts(r)}"
+            if seconds is not None:  # the same measure as the run log's line
+                text = f"Done in {seconds:.2f} s: {_session.run_counts(r)}"
         self.status_text.setText(text)
         if not running and self._rerun_after_stop:
             self._rerun_after_stop = False
@@ -545,7 +595,7 @@ class MainWindow(QMainWindow):
     def _update_title(self, _=None):
         s = self.session
         name = Path(s.session_path).name if s.session_path else (
-            Path(s.data_path).name if s.data_path else "no data")
+            _data_title(s.data_path) if s.data_path else "no data")
         self.setWindowTitle(f"{name}{' •' if s.dirty else ''} — Edgewise")
 
     def _on_notification(self, note):
@@ -576,6 +626,10 @@ class MainWindow(QMainWindow):
         if not self.session.set_setting("alpha", value):
             self._on_settings(self.session.settings)
 
+    def _test_tooltip(self, index):
+        name = self.test_choice.itemData(index)
+        self.test_choice.setToolTip(f"independence test: {name} — {TEST_NAMES.get(name, '')}")
+
     def _on_depth(self, value):
         self.session.set_setting("max_depth", None if value == self._depth_none else value)
 
@@ -594,6 +648,8 @@ class MainWindow(QMainWindow):
     def _auto_run(self):
         s = self.session
         if not (s.stale and s.result is not None):
+            return
+        if s.data_changed:  # a saved result on changed data: the user decides when to run
             return
         if s.status in ("running", "stopping"):
             self._rerun_after_stop = True
@@ -616,10 +672,28 @@ class MainWindow(QMainWindow):
             ok = self.session.open_session(path)
         else:
             ok = self.session.open_data(path)
+            if ok:
+                self.offer_knowledge_beside(path)
         if ok:
+            self._auto_timer.stop()  # opening is not an edit: nothing runs by itself
             self.add_recent(path)
             self.canvas.request_fit()
         return ok
+
+    def offer_knowledge_beside(self, data_path) -> bool:
+        """When a knowledge file sits beside the data (as in the bundled examples), ask
+        whether to load it; True when it was loaded."""
+        found = self.session.knowledge_beside(data_path)
+        if found is None:
+            return False
+        answer = QMessageBox.question(
+            self, "Knowledge beside the data",
+            f"{found.name} sits beside {Path(data_path).name}. Load its knowledge (locked "
+            "and forbidden pairs, stages) into the session? You can edit or clear it "
+            "afterwards.", QMessageBox.Yes | QMessageBox.No, QMessageBox.Yes)
+        if answer != QMessageBox.Yes:
+            return False
+        return self.session.load_knowledge(found)
 
     def _dialog_folder(self) -> str:
         return str(self.qsettings.value("lastFolder", str(Path.home())))

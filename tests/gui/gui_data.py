@@ -27,3 +27,20 @@ def latent_frame(p=40, n=300, seed=5) -> pd.DataFrame:
     factor = rng.normal(size=n)
     cols = {f"v{i:02d}": 0.8 * factor + rng.normal(scale=0.6, size=n) for i in range(p)}
     return pd.DataFrame(cols)
+
+
+#: Name parts of the 60-variable table (an invented water-network scenario).
+_WORDS = ("inflow", "pressure", "valve_open", "turbidity", "chlorine", "pump_speed",
+          "tank_level", "night_use", "leak_alarm", "temperature", "main_flow", "ph")
+
+
+def sixty_frame(n=600, seed=8) -> pd.DataFrame:
+    """60 variables from a random linear-Gaussian diagram (about two neighbours each), named
+    like the readings of an invented water network; for the readability check."""
+    import networkx as nx
+    from discovery.simulate import random_dag, sample_linear_gaussian
+    dag = random_dag(60, expected_degree=2.0, rng=seed)
+    names = {v: f"{_WORDS[i % len(_WORDS)]}_{i // len(_WORDS) + 1}"
+             for i, v in enumerate(sorted(dag.nodes))}
+    dag = nx.relabel_nodes(dag, names)
+    return sample_linear_gaussian(dag, n, rng=seed)

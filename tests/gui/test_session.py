@@ -259,9 +259,11 @@ def test_layouts_keep_nodes_apart_and_are_repeatable():
     edges = [(f"n{a}", f"n{b}") for a, b in g.edges]
     pos = force_layout(names, edges)
     assert pos == force_layout(names, edges)
+    from gui._layout import node_size
     close = [(a, b) for i, a in enumerate(names) for b in names[i + 1:]
-             if abs(pos[a][0] - pos[b][0]) < 100 and abs(pos[a][1] - pos[b][1]) < 40]
-    assert close == []  # boxes of about 110 × 34 do not overlap
+             if abs(pos[a][0] - pos[b][0]) < node_size(a)[0] / 2 + node_size(b)[0] / 2 + 30
+             and abs(pos[a][1] - pos[b][1]) < 34 + 20]
+    assert close == []  # boxes do not overlap, with room between them
     staged = layered_layout(names[:10], edges, [names[:3], names[3:6]])
     assert max(staged[v][0] for v in names[:3]) < min(staged[v][0] for v in names[3:6])
     assert set(arrange(names[:5])) == set(names[:5])

@@ -29,6 +29,9 @@ def dialogs(monkeypatch):
     shown = []
     monkeypatch.setattr(QMessageBox, "warning",
                         staticmethod(lambda parent, title, text, *a: shown.append((title, text))))
+    # questions (load the knowledge beside the data?) are answered No unless a test says
+    monkeypatch.setattr(QMessageBox, "question",
+                        staticmethod(lambda *a, **k: QMessageBox.No))
     return shown
 
 
