@@ -115,6 +115,8 @@ def _build_parser() -> argparse.ArgumentParser:
                     ".edgewise session.",
         epilog="example:\n  edgewise gui example_sets/greenhouse/data.csv")
     g.add_argument("path", nargs="?", help="data file or .edgewise session to open")
+    from .cli_controls import register as register_controls
+    register_controls(sub)
     return parser
 
 
@@ -131,7 +133,7 @@ def main(argv=None) -> int:
         parser.print_help()
         return 2
     handler = {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
-               "gui": _cmd_gui}[args.command]
+               "gui": _cmd_gui, "controls": _cmd_controls}[args.command]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # notes reach the user through the result
@@ -326,6 +328,11 @@ def _cmd_bench(args) -> int:
     report = run_benchmarks(quick=args.quick, write=args.write)
     print(report)
     return 0
+
+
+def _cmd_controls(args) -> int:
+    from .cli_controls import run
+    return run(args, error=CommandError, output_path=_output_path, caution=CAUTION)
 
 
 def _cmd_gui(args) -> int:

@@ -326,6 +326,12 @@ class _Criterion:
         self.g, self.x, self.y = g, x, y
         self.notes: list[str] = []
         self.member = g.member()  # raises on an invalid class
+        if g.contested:
+            pairs = ", ".join(sorted(" — ".join(sorted(p)) for p in g.contested))
+            self.notes.append(f"contested pair(s) {pairs} (colliders pointed both ways) are "
+                              "read as undirected; the class is then not a proper equivalence "
+                              "class and this answer may be wrong: look at their evidence, "
+                              "the survival sweep, or add knowledge")
         # nodes on proper possibly causal paths, and what they make forbidden
         first = [v for v in g.neighbours(x) if g.step(x, v)]
         reach = g.possible_descendants(first, avoid=[x])
@@ -519,8 +525,8 @@ class _Criterion:
     def check(self, z: frozenset) -> Verdict:
         x, y, g = self.x, self.y, self.g
         if not self.amenable:
-            return Verdict(z, False, f"no set is valid: the effect is not identifiable by "
-                                     f"adjustment (the path {g.path_text(self.breaking_path)} "
+            return Verdict(z, False, f"the effect is not identifiable by adjustment, so no "
+                                     f"set is valid (the path {g.path_text(self.breaking_path)} "
                                      f"does not start with an edge {'visible and ' if g.kind == 'pag' else ''}"
                                      f"directed out of {x})", self.breaking_path)
         bad = z & self.forbidden

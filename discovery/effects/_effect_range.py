@@ -251,7 +251,7 @@ def _possible_parent_sets(g, x):
             if any(not g.adjacent(a, b) for a, b in combinations(sorted(into, key=str), 2)
                    if a in s or b in s):
                 continue
-            if g.kind == "pdag":
+            if g.kind == "pdag" and not g.contested:
                 away = [w for w in sibs if w not in s]
                 # no new collider at a neighbour now pointed into: x → w ← u, u not adj x
                 if any(not g.adjacent(u, x) and u != x for w in away for u in g.parents(w)):

@@ -54,10 +54,12 @@ class MarkedGraph:
     kind : {"dag", "cpdag", "pdag", "pag"}
     """
 
-    def __init__(self, nodes, marks, kind):
+    def __init__(self, nodes, marks, kind, contested=()):
         self.nodes = tuple(nodes)
         self.mark = {v: dict(marks.get(v, {})) for v in self.nodes}
         self.kind = kind
+        #: Pairs colliders tried to orient both ways; read as undirected (tail/tail).
+        self.contested = frozenset(frozenset(p) for p in contested)
 
     # -- local structure ---------------------------------------------------------------------
     def adjacent(self, u, v) -> bool:
@@ -147,6 +149,23 @@ class MarkedGraph:
         undirected = {frozenset((u, v)) for u in self.nodes for v in self.mark[u]
                       if self.undirected(u, v)}
         dag = extend_to_dag(self.nodes, directed, undirected)
+        if dag is None and self.contested and nx.is_directed_acyclic_graph(
+                nx.DiGraph(directed)):
+            # Contested pairs are not a proper class: orient them along the directed edges'
+            # order, then extend the rest; as a last resort orient everything by that order.
+            base = nx.DiGraph(directed)
+            base.add_nodes_from(self.nodes)
+            pos = {v: i for i, v in enumerate(nx.lexicographical_topological_sort(base, key=str))}
+
+            def along(e):
+                u, v = sorted(e, key=pos.__getitem__)
+                return (u, v)
+
+            dag = extend_to_dag(self.nodes, directed + [along(e) for e in self.contested],
+                                undirected - self.contested)
+            if dag is None:
+                dag = nx.DiGraph(directed + [along(e) for e in undirected])
+                dag.add_nodes_from(self.nodes)
         if dag is None:
             g = nx.DiGraph(directed)
             try:
@@ -284,7 +303,9 @@ def marked_graph(graph, *, kind: str | None = None) -> MarkedGraph:
         knowledge = getattr(graph, "knowledge", None)
         kind = "pag" if pag else ("cpdag" if knowledge is None or knowledge.is_empty()
                                   else "pdag")
-    g = MarkedGraph(graph.variables, marks, kind)
+    contested = [(e.source, e.target) for e in graph.edges
+                 if getattr(e, "kind", "") == "contested"]
+    g = MarkedGraph(graph.variables, marks, kind, contested)
     if kind == "pag":
         for u in g.nodes:
             for v in g.mark[u]:
