@@ -27,6 +27,7 @@ from .. import _session
 from . import export as _export
 from . import style
 from .canvas import GraphCanvas
+from .controls_panel import ControlsPanel
 from .inspector import Inspector
 from .panels import StagesEditor, VariablesPanel
 from .style import signals_blocked
@@ -371,6 +372,11 @@ class MainWindow(QMainWindow):
                                          Qt.RightDockWidgetArea)
         self.log_dock = self._dock("Run log", self.log_view, "logDock",
                                    Qt.BottomDockWidgetArea)
+        self.controls = ControlsPanel(s)
+        self.controls_dock = self._dock("Controls", self.controls, "controlsDock",
+                                        Qt.RightDockWidgetArea)
+        self.tabifyDockWidget(self.inspector_dock, self.controls_dock)
+        self.inspector_dock.raise_()
         self.setCorner(Qt.BottomLeftCorner, Qt.LeftDockWidgetArea)
         self.setCorner(Qt.BottomRightCorner, Qt.RightDockWidgetArea)
         self.resizeDocks([self.variables_dock, self.inspector_dock], [270, 330], Qt.Horizontal)
@@ -412,7 +418,7 @@ class MainWindow(QMainWindow):
             m.addAction(act)
         m.addSeparator()
         for dock in (self.variables_dock, self.stages_dock, self.inspector_dock,
-                     self.log_dock):
+                     self.controls_dock, self.log_dock):
             m.addAction(dock.toggleViewAction())
         m = bar.addMenu("&Help")
         m.addAction(self.act_assumptions)
