@@ -369,14 +369,13 @@ def draw_effect_range(record: EffectRange, path=None, *, ax=None):
     ax.set_yticks(ys)
     ax.set_yticklabels([r[0] for r in rows], fontsize=8)
     ax.set_ylim(-0.7, len(rows) - 0.3)
-    ax.set_xlabel(f"effect of {record.treatment} on {record.outcome} "
-                  f"({100 * record.level:g}% intervals)", fontsize=8)
+    ax.set_xlabel(f"effect of {record.treatment} on {record.outcome}", fontsize=8)
     ax.tick_params(axis="x", labelsize=8)
     ax.set_facecolor("#FFFFFF")
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
-    fig.text(0.01, 0.01, "Valid only if the diagram class is right and effects are linear.",
-             fontsize=6.5, color=slate)
+    fig.text(0.01, 0.01, f"Bars: {100 * record.level:g}% intervals. Valid only if the diagram "
+             "class is right and effects are linear.", fontsize=6.5, color=slate)
     fig.tight_layout(rect=(0, 0.05, 1, 1))
     if path is not None:
         from pathlib import Path

@@ -17,7 +17,7 @@ from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QColor, QPainter, QPainterPath, QPen, QPixmap
 from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QLabel, QLineEdit,
                                QListWidget, QListWidgetItem, QMenu, QPushButton, QScrollArea,
-                               QVBoxLayout, QWidget)
+                               QSizePolicy, QVBoxLayout, QWidget)
 
 from . import style
 
@@ -120,6 +120,7 @@ class ControlsPanel(QWidget):
         scroll = QScrollArea(self)
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QScrollArea.NoFrame)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
         outer.addWidget(scroll)
         body = QWidget()
         scroll.setWidget(body)
@@ -170,6 +171,9 @@ class ControlsPanel(QWidget):
         self.chart = QLabel()
         self.chart.setObjectName("effectChart")
         self.chart.setAlignment(Qt.AlignCenter)
+        self.chart.setMinimumWidth(1)
+        self.chart.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Preferred)
+        self._chart_pixmap = QPixmap()
         lay.addWidget(self.chart)
         self.effect_text = QLabel()
         self.effect_text.setObjectName("effectSummary")
@@ -287,20 +291,37 @@ class ControlsPanel(QWidget):
         self.verdict.setText(f"Planned set {escape(_set(verdict.set))}: "
                              f"<b style='color:{colour}'>{word}</b> — {escape(verdict.reason)}")
 
+    def _scale_chart(self):
+        pix = self._chart_pixmap
+        if pix.isNull():
+            return
+        width = max(120, self.width() - 28)
+        self.chart.setPixmap(pix if pix.width() <= width
+                             else pix.scaledToWidth(width, Qt.SmoothTransformation))
+
+    def resizeEvent(self, event):
+        super().resizeEvent(event)
+        self._scale_chart()
+
     def _show_effects(self):
         s = self.session
         effects = s.effects
         if effects is None:
+            self._chart_pixmap = QPixmap()
             self.chart.clear()
             self.effect_text.setText(escape(s.controls_note) if s.controls is not None else "")
             return
         from discovery.effects import draw_effect_range
         fig = draw_effect_range(effects)
+        width_in = max(3.2, (self.width() - 28) / 90)
+        fig.set_size_inches(width_in, fig.get_size_inches()[1] * 0.85)
+        fig.tight_layout(rect=(0, 0.05, 1, 1))
         buf = io.BytesIO()
         fig.savefig(buf, format="png", dpi=90, facecolor=fig.get_facecolor())
         pix = QPixmap()
         pix.loadFromData(buf.getvalue(), "PNG")
-        self.chart.setPixmap(pix)
+        self._chart_pixmap = pix
+        self._scale_chart()
         text = (f"{len(effects.effects)} possible effect(s), {effects.min:.3g} to "
                 f"{effects.max:.3g}; {100 * effects.share_zero:.0f}% zero or not "
                 f"distinguishable from zero.")
