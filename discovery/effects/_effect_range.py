@@ -98,7 +98,8 @@ class EffectEstimate:
                 f"{_set(self.controls)}: {self.estimate:.4g} (SE {self.se:.3g}; {pct} CI "
                 f"{self.ci[0]:.4g} to {self.ci[1]:.4g}; {self.rows} rows)")
         if self.valid is False:
-            text += f" — the set is NOT valid ({self.reason}), so this estimate is biased"
+            text += (f" — this set is NOT valid for the diagram, so the estimate may be "
+                     f"biased: {self.reason}")
         return text
 
 
