@@ -25,9 +25,11 @@ def register(sub) -> None:
                     "treatment on an outcome in every diagram of a search result's class "
                     "(or in a known diagram), check a planned set, and with --data list the "
                     "range of effects the data allow.",
-        epilog="example:\n  edgewise controls out/greenhouse.json --treatment irrigation "
-               "--outcome yield \\\n      --check \"soil_moisture\" --data "
-               "example_sets/greenhouse/data.csv --out out/controls.json")
+        epilog="examples:\n  edgewise controls out/greenhouse.json --treatment humidity "
+               "--outcome fruit_yield \\\n      --check \"air_temp\" --data "
+               "example_sets/greenhouse/data.csv --out out/controls.json\n"
+               "  edgewise controls example_sets/greenhouse/truth.csv --treatment humidity "
+               "--outcome fruit_yield")
     c.add_argument("diagram", metavar="RESULT|DIAGRAM",
                    help="a search result (.json) or a known DAG (.graphml, or a CSV edge "
                         "list with columns from,to)")
