@@ -301,6 +301,7 @@ def test_pag_hidden_cause_of_treatment_and_outcome_has_no_valid_set():
     assert answer.amenable and answer.canonical is None and not answer.causal_nodes
     assert not answer.check(["a", "b"]).valid
     assert "↔" in answer.check([]).reason
+    assert any("x ↔ y points into x" in n for n in answer.notes)  # says why
 
 
 def test_pag_visible_edge_is_identifiable():

@@ -218,9 +218,8 @@ class ControlSets:
                 + ". No control set is valid; knowledge that orients this edge (or an "
                 "experiment) is needed.")
         elif self.canonical is None:
-            lines.append(f"The effect is identifiable in principle, but no set of measured "
-                         f"variables is valid: some non-causal path from {x} to {y} cannot "
-                         "be blocked without a forbidden variable.")
+            lines.append(f"No valid control set: some non-causal path from {x} to {y} cannot "
+                         "be blocked by measured variables that are not forbidden.")
         else:
             lines.append(f"Identifiable by adjustment in every diagram of the class.")
             lines.append(f"  canonical set: {_set(self.canonical)}")
@@ -562,12 +561,13 @@ class _Criterion:
                 optimal = self._optimal()
                 minimal, complete = self._minimal(canonical)
             else:
-                self.notes.append("no set of measured variables blocks every non-causal path "
-                                  f"from {x} to {y} (for instance {x} and {y} may share a "
-                                  "hidden cause, or be linked by an edge into the treatment)"
-                                  if g.kind == "pag" or g.adjacent(x, y) else
-                                  "no set of measured variables blocks every non-causal path "
-                                  f"from {x} to {y}")
+                if g.adjacent(x, y) and g.mark[y][x] == "arrow":
+                    self.notes.append(f"the edge {g.edge_text(x, y)} points into {x}: it is a "
+                                      "non-causal path (a hidden common cause, or the outcome "
+                                      "acting on the treatment) that no set can block")
+                else:
+                    self.notes.append("no set of measured, not forbidden variables blocks every "
+                                      f"non-causal path from {x} to {y}")
         return ControlSets(x, y, g.kind, self.amenable, self.breaking_path, canonical, optimal,
                            minimal, MINIMAL_BOUND, complete, self.forbidden, self.causal_nodes,
                            tuple(self.notes), CONTROL_CAUTIONS, self)
