@@ -501,3 +501,39 @@ def test_mag_answer_is_valid_in_the_dag_with_hidden_variables(seed):
                                                                a, b, z)
                         checked += 1
     assert checked > 0
+
+
+def asymptotic_variance(sigma, index, x, y, z):
+    """n × Var of the OLS coefficient of x in y ~ x + Z: σ²(y | x, Z) / σ²(x | Z)
+    (linear-model algebra on the population covariance)."""
+    def residual_variance(target, given):
+        g = [index[v] for v in given]
+        t = index[target]
+        if not g:
+            return sigma[t, t]
+        return sigma[t, t] - sigma[t, g] @ np.linalg.solve(sigma[np.ix_(g, g)], sigma[g, t])
+    return residual_variance(y, [x, *sorted(z)]) / residual_variance(x, sorted(z))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_optimal_set_has_the_smallest_asymptotic_variance(seed):
+    # Henckel, Perković & Maathuis (2022), main result (from memory): among valid sets the
+    # optimal one has the smallest asymptotic variance; here exact population variances of a
+    # random linear model, for DAGs and for the CPDAG of each.
+    rng = np.random.default_rng(400 + seed)
+    compared = 0
+    for _ in range(6):
+        dag = random_dag(rng, int(rng.integers(4, 7)), p=0.5)
+        nodes, index, inv, sigma = linear_model(dag, rng)
+        result = discover(None, test=DSeparationOracle(dag))
+        for x, y in pairs_of(dag, rng, 3):
+            for graph in (dag, result):
+                answer = control_sets(graph, x, y)
+                if answer.optimal is None:
+                    continue
+                best = asymptotic_variance(sigma, index, x, y, answer.optimal)
+                for z in subsets(set(dag) - {x, y}):
+                    if answer.check(z).valid:
+                        assert best <= asymptotic_variance(sigma, index, x, y, z) * (1 + 1e-9)
+                        compared += 1
+    assert compared > 0
