@@ -54,6 +54,9 @@ from ._graph import ControlSetError, MarkedGraph, marked_graph
 
 __all__ = ["control_sets", "ControlSets", "Verdict", "MINIMAL_BOUND", "CONTROL_CAUTIONS"]
 
+#: networkx d-separation (``is_d_separator`` from networkx 3.3, ``d_separated`` before).
+_d_separated = getattr(nx, "is_d_separator", None) or nx.d_separated
+
 #: At most this many minimal sets are listed.
 MINIMAL_BOUND = 20
 #: At most this many minimal separators are generated while listing minimal sets.
@@ -492,7 +495,7 @@ class _Criterion:
         self.pbd = pbd
 
     def blocks(self, z) -> bool:
-        return nx.is_d_separator(self.pbd, {self.x}, {self.y}, set(z))
+        return _d_separated(self.pbd, {self.x}, {self.y}, set(z))
 
     def open_path(self, z):
         """A path of the member's back-door graph left open by ``z`` (observed nodes only), or
