@@ -100,7 +100,8 @@ class MarkedGraph:
             return ""
         parts = [str(path[0])]
         for u, v in zip(path, path[1:]):
-            parts.append(_SYMBOL[self.mark[v][u], self.mark[u][v]])
+            parts.append(_SYMBOL[self.mark[v][u], self.mark[u][v]] if self.adjacent(u, v)
+                         else "…")
             parts.append(str(v))
         return " ".join(parts)
 
