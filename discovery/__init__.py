@@ -35,6 +35,8 @@ from .independence import DSeparationOracle, FisherZ, PValueCache
 from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
 from .knowledge import Knowledge, read_knowledge, write_knowledge
 from .search import discover
+from .effects import (ControlSetError, ControlSets, EffectRange, control_sets, effect_range,
+                      estimate_effect)
 from .settings import PARAMETERS, SearchSettings
 
 __all__ = [
@@ -44,5 +46,8 @@ __all__ = [
     "SearchSettings", "PARAMETERS",
     "DSeparationOracle", "FisherZ", "PValueCache",
     "DiscoveryError", "DataValidationError", "KnowledgeError", "SettingsError",
-    "ResultFormatError", "ResourceLimitError", "SearchCancelled", "DegenerateDataWarning", "SearchLimitWarning",
+    "ResultFormatError", "ResourceLimitError", "SearchCancelled", "DegenerateDataWarning",
+    "SearchLimitWarning",
+    "control_sets", "ControlSets", "effect_range", "EffectRange", "estimate_effect",
+    "ControlSetError",
 ]

@@ -158,6 +158,70 @@ def format_search(fig: dict) -> str:
     ])
 
 
+def _class_result(dag):
+    """The CPDAG of ``dag`` as a search result (Chickering's labelling, no tests run)."""
+    from .knowledge import Knowledge
+    from .metrics import cpdag_of
+    from .result import Edge, SearchResult
+    from .settings import SearchSettings
+    c = cpdag_of(dag)
+    edges = [Edge(u, v, "undirected" if c.has_edge(v, u) else "directed")
+             for u, v in c.edges if not (c.has_edge(v, u) and str(v) < str(u))]
+    return SearchResult(variables=tuple(str(v) for v in dag.nodes), settings=SearchSettings(),
+                        knowledge=Knowledge(), edges=tuple(edges), removed=(), tests=())
+
+
+def controls_benchmarks(*, quick: bool = False, progress=print) -> dict:
+    """Control sets on a 50-variable CPDAG (every treatment with a possibly causal path to
+    a later outcome, up to 40 pairs) and the effect range on a 200-variable CPDAG with
+    5,000 rows (treatments with the most undirected neighbours)."""
+    import networkx as nx
+    from .effects import control_sets, effect_range
+    from .simulate import random_dag, sample_linear_gaussian
+
+    rng = np.random.default_rng(20261203)
+    p, n_big = (20, 60) if quick else (50, 200)
+    rows = 1000 if quick else 5000
+    progress(f"control-set benchmark: {p} variables, expected degree 3")
+    dag = random_dag(p, expected_degree=3, rng=rng)
+    result = _class_result(dag)
+    pairs = [(str(x), str(y)) for x in dag for y in nx.descendants(dag, x)]
+    pairs = [pairs[i] for i in rng.permutation(len(pairs))[:40]]
+    times = []
+    for x, y in pairs:
+        times.append(_best(lambda: control_sets(result, x, y), 3)[0])
+    progress(f"effect-range benchmark: {n_big} variables, {rows} rows")
+    big = random_dag(n_big, expected_degree=3, rng=rng)
+    frame = sample_linear_gaussian(big, rows, rng=rng)
+    big_result = _class_result(big)
+    degree = {v: sum(1 for e in big_result.edges if e.kind == "undirected" and v in e.pair)
+              for v in big_result.variables}
+    treatments = sorted(degree, key=lambda v: -degree[v])[:5]
+    outcome = {x: next(iter(sorted(nx.descendants(big, x), key=str)), None) or
+               next(v for v in big_result.variables if v != x) for x in treatments}
+    effect_range(big_result, frame, treatments[0], outcome[treatments[0]])  # warm-up
+    ranges = [_best(lambda x=x: effect_range(big_result, frame, x, outcome[x]), 3)
+              for x in treatments]
+    return {"variables": p, "pairs": len(pairs), "median_s": float(np.median(times)),
+            "max_s": float(max(times)), "big_variables": n_big, "rows": rows,
+            "range_max_s": max(t for t, _ in ranges),
+            "range_sets_max": max(len(r.effects) for _, r in ranges),
+            "range_neighbours_max": degree[treatments[0]]}
+
+
+def format_controls(fig: dict) -> str:
+    return "\n".join([
+        "## Control sets and effect ranges", "",
+        "| what | measured | target |", "|---|---|---|",
+        f"| `control_sets` on a {fig['variables']}-variable CPDAG, {fig['pairs']} treatment–"
+        f"outcome pairs (canonical, optimal, minimal sets) | median {fig['median_s']:.4f} s, "
+        f"slowest {fig['max_s']:.4f} s | < 1 s |",
+        f"| `effect_range` on a {fig['big_variables']}-variable CPDAG, {fig['rows']:,} rows, "
+        f"5 treatments with the most undirected neighbours (up to "
+        f"{fig['range_neighbours_max']}; up to {fig['range_sets_max']} parent sets) | slowest "
+        f"{fig['range_max_s']:.3f} s | < 5 s |", ""])
+
+
 def _extra_benchmarks(quick: bool) -> list[str]:
     """Run tests/benchmarks/bench_*.py of a source checkout, when present."""
     root = Path(__file__).resolve().parent.parent / "tests" / "benchmarks"
@@ -190,8 +254,14 @@ def run_benchmarks(*, quick: bool = False, write: str | None = None) -> str:
     machine = machine_description()
     section = format_search(fig) + f"\nMachine: {machine}. Measured {time.strftime('%Y-%m-%d')}" \
         + (" (quick sizes)" if quick else "") + ".\n"
+    controls = format_controls(controls_benchmarks(
+        quick=quick, progress=lambda m: print(m, file=sys.stderr))) \
+        + f"\nMachine: {machine}, shared with other work. Measured " \
+        + f"{time.strftime('%Y-%m-%d')}" + (" (quick sizes)" if quick else "") + ".\n"
     if write:
         replace_section(Path(write), section)
+        replace_section(Path(write), controls)
+    section += "\n" + controls
     extras = _extra_benchmarks(quick)
     return section + ("\n" + "\n".join(extras) if extras else "")
 

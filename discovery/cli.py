@@ -141,9 +141,11 @@ def _build_parser() -> argparse.ArgumentParser:
         epilog="example:\n  edgewise gui example_sets/greenhouse/data.csv")
     g.add_argument("path", nargs="?", help="data file or .edgewise session to open")
     from . import cli_exchange
+    from .cli_controls import register as register_controls
     from .report import cli as report_cli
     cli_exchange.register(sub)
     report_cli.register(sub)
+    register_controls(sub)
     return parser
 
 
@@ -162,7 +164,7 @@ def main(argv=None) -> int:
     from . import cli_explain
     handler = getattr(args, "handler", None) or {
         "discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
-        "gui": _cmd_gui, "explain": cli_explain.run}[args.command]
+        "gui": _cmd_gui, "explain": cli_explain.run, "controls": _cmd_controls}[args.command]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # notes reach the user through the result
@@ -426,6 +428,11 @@ def _cmd_bench(args) -> int:
     report = run_benchmarks(quick=args.quick, write=args.write)
     print(report)
     return 0
+
+
+def _cmd_controls(args) -> int:
+    from .cli_controls import run
+    return run(args, error=CommandError, output_path=_output_path, caution=CAUTION)
 
 
 def _cmd_gui(args) -> int:

@@ -108,6 +108,25 @@ def main() -> int:
     pump(app)
     shot(w, "05-knowledge-and-stages.png")
 
+    # the Controls panel: a treatment, an outcome, a planned set and the effect range
+    s.clear_selection()
+    w.controls_dock.raise_()
+    from discovery import control_sets
+    pairs = [(x, y) for y in ("fruit_yield", "leaf_area") for x in s.result.variables
+             if x != y]
+    answers = [control_sets(s.result, x, y) for x, y in pairs]
+    good = next(a for a in answers if a.optimal and a.causal_nodes and len(a.minimal) > 1)
+    s.update({"treatment": good.treatment, "outcome": good.outcome,
+              "planned": tuple(good.minimal[-1])})
+    pump(app, 200)
+    shot(w, "11-controls.png")
+    bad = next(a for a in answers if not a.amenable)
+    s.update({"treatment": bad.treatment, "outcome": bad.outcome, "planned": ()})
+    pump(app, 200)
+    shot(w, "12-controls-not-identifiable.png")
+    s.update({"treatment": None, "outcome": None})
+    w.inspector_dock.raise_()
+
     s.clear_selection()
     s.forbid("air_temp", "humidity")
     pump(app)

@@ -79,12 +79,20 @@ FIELDS = {
     "dirty": False,             # changed since last save or open
     "history": (None, None),    # labels of the next undo and redo, or None
     "log": (),                  # run log lines
+    "treatment": None,          # str | None: the Controls panel's treatment
+    "outcome": None,            # str | None: the Controls panel's outcome
+    "planned": (),              # tuple of str: the planned control set (outlined on the canvas)
+    "controls": None,           # ControlSets | None: the answer for the result, kept current
+    "effects": None,            # EffectRange | None: the effect range, when data are open
+    "controls_note": "",        # why there is no answer or no effect range (one line), or ""
 }
 
-_IDENTITY_FIELDS = {"dataset", "result"}
+_IDENTITY_FIELDS = {"dataset", "result", "controls", "effects"}
+#: Fields whose change recomputes the control-set answer.
+_CONTROL_INPUTS = {"result", "dataset", "treatment", "outcome", "planned"}
 _INPUT_FIELDS = {"settings", "knowledge", "included"}
 _SAVED_FIELDS = {"settings", "knowledge", "included", "result", "positions", "overlay",
-                 "data_path"}
+                 "data_path", "treatment", "outcome", "planned"}
 _LOG_LINES = 2000
 _STOP_CHUNK = 2048  # a batch is split so that a stop is seen within one chunk
 
@@ -308,6 +316,11 @@ class Session:
         if not changed:
             return []
         touched = set(changed)
+        if touched & _CONTROL_INPUTS and not {"controls", "effects"} & set(values):
+            for name, value in self._controls_state().items():
+                if not _same(name, self._values[name], value):
+                    self._values[name] = value
+                    changed.append(name)
         if touched & (_INPUT_FIELDS | {"result"}):
             stale = self._compute_stale()
             if stale != self._values["stale"]:
@@ -332,6 +345,10 @@ class Session:
             raise TypeError("result must be a discovery.SearchResult or None")
         if name in ("included", "selection", "log"):
             value = tuple(value)
+        if name == "planned":
+            value = tuple(sorted({str(v) for v in value}))
+        if name in ("treatment", "outcome") and value is not None:
+            value = str(value)
         if name == "selection" and len(value) > 2:
             raise ValueError("selection holds at most two variables")
         if name == "positions":
@@ -415,6 +432,9 @@ class Session:
             "status": "idle", "progress": None, "selection": (),
             "positions": _layout.arrange(dataset.variables, (), knowledge.stages),
             "session_path": None, "layouts": self.layouts + 1,
+            "treatment": self.treatment if self.treatment in dataset.variables else None,
+            "outcome": self.outcome if self.outcome in dataset.variables else None,
+            "planned": tuple(v for v in self.planned if v in dataset.variables),
         })
         self.update({"dirty": False})
         object.__setattr__(self, "_autosaved_generation", self._generation)
@@ -832,6 +852,90 @@ class Session:
             return False
         return self.finish_run(job, result, seen)
 
+    # -- control sets -------------------------------------------------------------------------
+    def set_treatment(self, name: str | None) -> None:
+        """Make ``name`` the treatment (the outcome is cleared if it was the same variable)."""
+        values = {"treatment": name, "planned": tuple(v for v in self.planned if v != name)}
+        if name is not None and name == self.outcome:
+            values["outcome"] = None
+        self.update(values)
+
+    def set_outcome(self, name: str | None) -> None:
+        """Make ``name`` the outcome (the treatment is cleared if it was the same variable)."""
+        values = {"outcome": name, "planned": tuple(v for v in self.planned if v != name)}
+        if name is not None and name == self.treatment:
+            values["treatment"] = None
+        self.update(values)
+
+    def set_planned(self, names) -> bool:
+        """Set the planned control set; a name that is not a variable, the treatment or the
+        outcome is refused with one line in the notifications."""
+        if isinstance(names, str):
+            names = [n.strip() for n in names.split(",") if n.strip()]
+        names = {str(n) for n in names}
+        known = set(self.result.variables) if self.result is not None else set(self.variables)
+        bad = sorted(names - known)
+        if bad:
+            self._error(f"{', '.join(map(repr, bad))} is not a variable of the result; use "
+                        "the names on the canvas", "Planned control set")
+            return False
+        for role in ("treatment", "outcome"):
+            if getattr(self, role) in names:
+                self._error(f"the planned set contains the {role} {getattr(self, role)!r}; "
+                            "a control set holds other variables only", "Planned control set")
+                return False
+        self.update({"planned": tuple(names)})
+        return True
+
+    def toggle_planned(self, name: str) -> bool:
+        """Add ``name`` to the planned set, or take it out."""
+        names = set(self.planned)
+        names.symmetric_difference_update({name})
+        return self.set_planned(names)
+
+    @property
+    def planned_verdict(self):
+        """The verdict on the planned set (``discovery.effects.Verdict``), or None."""
+        if self.controls is None:
+            return None
+        try:
+            return self.controls.check(self.planned)
+        except DiscoveryError:
+            return None
+
+    def _controls_state(self) -> dict:
+        from discovery.effects import control_sets, effect_range
+        v = self._values
+        x, y, result = v["treatment"], v["outcome"], v["result"]
+        empty = {"controls": None, "effects": None}
+        if result is None:
+            return {**empty, "controls_note": "run a search to get control sets" if x or y
+                    else ""}
+        if x is None or y is None:
+            return {**empty, "controls_note": "choose a treatment and an outcome"}
+        try:
+            answer = control_sets(result, x, y)
+        except DiscoveryError as err:
+            return {**empty, "controls_note": str(err)}
+        note, effects = "", None
+        if v["dataset"] is not None and answer.kind != "pag":
+            planned = set(v["planned"])
+            try:
+                ok = answer.check(planned).valid
+            except DiscoveryError:
+                ok = False
+            chosen = planned if ok else (answer.optimal if answer.optimal is not None
+                                         else answer.canonical)
+            try:
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    effects = effect_range(result, v["dataset"], x, y, controls=chosen)
+            except DiscoveryError as err:
+                note = f"no effect range: {err}"
+        elif v["dataset"] is None:
+            note = "open the data to see the effect range"
+        return {"controls": answer, "effects": effects, "controls_note": note}
+
     # -- session files ------------------------------------------------------------------------
     def to_dict(self, *, base: Path | None = None) -> dict:
         """The session document (see :data:`FORMAT`)."""
@@ -863,6 +967,8 @@ class Session:
                           self.positions.items()},
             "overlay": self.overlay,
             "selection": list(self.selection),
+            "controls": {"treatment": self.treatment, "outcome": self.outcome,
+                         "planned": list(self.planned)},
         }
 
     def save_session(self, path) -> bool:
@@ -1098,9 +1204,15 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
             result_key = (result.settings, result.knowledge, tuple(result.variables))
     selection = tuple(v for v in doc.get("selection", ()) if isinstance(v, str)
                       and v in variables)[:2]
+    roles = doc.get("controls") if isinstance(doc.get("controls"), dict) else {}
+    treatment, outcome = (roles.get(k) if roles.get(k) in variables else None
+                          for k in ("treatment", "outcome"))
+    planned = tuple(v for v in roles.get("planned", ()) if isinstance(v, str)
+                    and v in variables and v not in (treatment, outcome))
     return ({"data_path": data_path, "dataset": dataset, "included": included,
              "settings": settings, "knowledge": knowledge, "result": result,
              "positions": {k: v for k, v in positions.items() if k in variables},
              "overlay": bool(doc.get("overlay", True)), "selection": selection,
-             "stale": stale, "result_key": result_key,
+             "stale": stale, "result_key": result_key, "treatment": treatment,
+             "outcome": outcome, "planned": planned,
              "session_path": doc.get("autosave_of")}, warns)

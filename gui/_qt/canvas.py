@@ -24,7 +24,7 @@ from PySide6.QtGui import (QAction, QBrush, QColor, QFont, QFontMetricsF, QPaint
 from PySide6.QtWidgets import (QCompleter, QGraphicsItem, QGraphicsScene, QGraphicsView,
                                QLabel, QLineEdit, QMenu, QToolButton, QWidget)
 
-from . import style
+from . import controls_panel, style
 
 NODE_H = 34.0
 ARROW_LEN = 11.0
@@ -364,8 +364,11 @@ class NodeItem(QGraphicsItem):
         if not self.included:
             pen = QPen(style.MUTED, 1.2, Qt.DashLine)
         painter.setPen(pen)
-        painter.setBrush(style.NODE_FILL)
+        fill, in_set = controls_panel.node_role(self.canvas.session, self.name)
+        painter.setBrush(fill or style.NODE_FILL)
         painter.drawRoundedRect(self.rect, 8, 8)
+        if in_set:
+            controls_panel.paint_set_outline(painter, self.rect)
         glyph = QRectF(self.rect.left() + 9, -5.5, 13, 11)
         style.paint_kind_glyph(painter, glyph, self.kind,
                                style.SLATE if self.included else style.MUTED)
@@ -473,6 +476,8 @@ class EdgeItem(QGraphicsItem):
 
     def paint(self, painter: QPainter, option, widget=None):
         overlay = self.canvas.session.overlay
+        if frozenset((self.source, self.target)) in self.canvas.path_pairs:
+            controls_panel.paint_path_halo(painter, self.p1, self.p2, self.control)
         draw_edge(painter, self.p1, self.p2, self.kind, marks=self.marks,
                   locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
@@ -721,6 +726,9 @@ class GraphCanvas(QGraphicsView):
         ev.selection.connect(self._on_selection)
         ev.stale.connect(self._on_banner)
         ev.status.connect(self._on_banner)
+        self.path_pairs: set = set()
+        for name in ("treatment", "outcome", "planned", "controls"):
+            getattr(ev, name).connect(self._on_roles)
         self._rebuild()
 
     def node_arrays(self):
@@ -840,6 +848,12 @@ class GraphCanvas(QGraphicsView):
             item = OverlayItem(self, kind, a, b)
             self.scene_.addItem(item)
             self.overlays.append(item)
+
+    def _on_roles(self, _=None):
+        """Treatment, outcome, planned set or the highlighted path changed: repaint."""
+        self.path_pairs = controls_panel.highlighted_pairs(self.session)
+        for item in list(self.nodes.values()) + list(self.edges.values()):
+            item.update()
 
     def _on_knowledge(self, _=None):
         locked = self.session.knowledge.required_adjacent()
@@ -1249,6 +1263,7 @@ class GraphCanvas(QGraphicsView):
                                          else "Include in the search")
                     act.triggered.connect(
                         lambda _=False, n=item.name, inc=inc: s.set_included(n, not inc))
+            controls_panel.add_control_actions(menu, s, item.name)
         else:
             for text, slot in (("Arrange again", lambda: s.arrange()),
                                ("Arrange (layered by stage, else force-directed)",

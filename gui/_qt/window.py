@@ -28,6 +28,7 @@ from .._words import test_label
 from . import export as _export
 from . import style
 from .canvas import GraphCanvas
+from .controls_panel import ControlsPanel
 from .inspector import Inspector
 from .panels import StagesEditor, VariablesPanel
 from .style import signals_blocked
@@ -408,6 +409,11 @@ class MainWindow(QMainWindow):
                                          Qt.RightDockWidgetArea)
         self.log_dock = self._dock("Run log", self.log_view, "logDock",
                                    Qt.BottomDockWidgetArea)
+        self.controls = ControlsPanel(s)
+        self.controls_dock = self._dock("Controls", self.controls, "controlsDock",
+                                        Qt.RightDockWidgetArea)
+        self.tabifyDockWidget(self.inspector_dock, self.controls_dock)
+        self.inspector_dock.raise_()
         self.setCorner(Qt.BottomLeftCorner, Qt.LeftDockWidgetArea)
         self.setCorner(Qt.BottomRightCorner, Qt.RightDockWidgetArea)
         self.resizeDocks([self.variables_dock, self.inspector_dock], [270, 330], Qt.Horizontal)
@@ -454,7 +460,7 @@ class MainWindow(QMainWindow):
         m.addAction(self.act_overlay)
         m.addSeparator()
         for dock in (self.variables_dock, self.stages_dock, self.inspector_dock,
-                     self.log_dock):
+                     self.controls_dock, self.log_dock):
             m.addAction(dock.toggleViewAction())
         m = bar.addMenu("&Help")
         m.addAction(self.act_assumptions)
