@@ -1,0 +1,352 @@
+"""The hidden-causes mode (FCI) against the definition of a PAG, computed by brute force.
+
+The reference here does not use the engine: for a DAG with hidden variables it enumerates
+every maximal ancestral graph (MAG) over the observed variables, with directed and bidirected
+edges, whose m-separations equal the DAG's d-separations among the observed variables (read
+with networkx's d-separation in each MAG's canonical DAG, where every bidirected edge a ↔ b
+becomes a hidden parent of a and b), and keeps the marks all of them share. That common-mark
+graph is the PAG (Richardson & Spirtes 2002, "Ancestral graph Markov models", Ann. Statist. 30,
+§3.7 and §4.2 on canonical DAGs; Zhang 2008, "On the completeness of orientation rules for
+causal discovery in the presence of latent confounders and selection bias", Artif. Intell.
+172, Definition of the PAG as the marks invariant across the class). Selection variables are
+not used, so MAGs have no undirected edges.
+"""
+
+from __future__ import annotations
+
+import warnings
+from itertools import combinations, product
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from discovery import Knowledge, discover
+from discovery.independence import DSeparationOracle
+
+# -- the reference, independent of the engine -------------------------------------------------
+
+
+def _subsets(items):
+    items = sorted(items)
+    for k in range(len(items) + 1):
+        yield from combinations(items, k)
+
+
+def _separations(dag, observed):
+    """{(x, y, S)} of every d-separation among observed variables (x < y)."""
+    out = set()
+    for x, y in combinations(sorted(observed), 2):
+        for s in _subsets(set(observed) - {x, y}):
+            if nx.is_d_separator(dag, {x}, {y}, set(s)):
+                out.add((x, y, s))
+    return out
+
+
+def _canonical_dag(directed, bidirected, observed):
+    """The canonical DAG of a MAG without undirected edges: a hidden parent per ↔ edge."""
+    g = nx.DiGraph()
+    g.add_nodes_from(observed)
+    g.add_edges_from(directed)
+    for a, b in bidirected:
+        g.add_edges_from([(f"_L_{a}_{b}", a), (f"_L_{a}_{b}", b)])
+    return g
+
+
+def _is_ancestral(directed, bidirected, observed):
+    g = nx.DiGraph(directed)
+    g.add_nodes_from(observed)
+    if not nx.is_directed_acyclic_graph(g):
+        return False
+    return all(b not in nx.descendants(g, a) and a not in nx.descendants(g, b)
+               for a, b in bidirected)
+
+
+def reference_pag(dag, latent):
+    """``{(a, b): (mark at a, mark at b)}`` (a < b) of the PAG, from every Markov-equivalent
+    MAG over the observed variables, with the number of MAGs found."""
+    observed = sorted(set(dag.nodes) - set(latent))
+    truth = _separations(dag, observed)
+    separated = {(x, y) for x, y, _ in truth}
+    sepset = {}
+    for x, y, s in sorted(truth, key=lambda t: len(t[2])):
+        sepset.setdefault((x, y), s)
+    edges = [(x, y) for x, y in combinations(observed, 2) if (x, y) not in separated]
+    adjacent = {frozenset(e) for e in edges}
+    # Markov-equivalent MAGs share unshielded colliders (a necessary condition, used only to
+    # prune the enumeration; the full m-separation check follows).
+    colliders = {}
+    for z in observed:
+        nbrs = sorted(v for v in observed if frozenset((v, z)) in adjacent)
+        for x, y in combinations(nbrs, 2):
+            if frozenset((x, y)) not in adjacent:
+                key = (min(x, y), max(x, y))
+                colliders[(x, z, y)] = z not in sepset[key]
+    members = []
+    choice = {}  # edge -> "->" (a→b), "<-" (b→a) or "<>"
+
+    def head_at(edge_of, v):
+        (a, b), c = edge_of
+        return c == "<>" or (c == "->" and v == b) or (c == "<-" and v == a)
+
+    def consistent():
+        for (x, z, y), is_collider in colliders.items():
+            ex, ey = (min(x, z), max(x, z)), (min(y, z), max(y, z))
+            if ex in choice and ey in choice:
+                got = head_at((ex, choice[ex]), z) and head_at((ey, choice[ey]), z)
+                if got != is_collider:
+                    return False
+        return True
+
+    def extend(i):
+        if i == len(edges):
+            directed = [(a, b) if c == "->" else (b, a)
+                        for (a, b), c in choice.items() if c != "<>"]
+            bidirected = [e for e, c in choice.items() if c == "<>"]
+            if not _is_ancestral(directed, bidirected, observed):
+                return
+            if _separations(_canonical_dag(directed, bidirected, observed), observed) == truth:
+                members.append(dict(choice))
+            return
+        for c in ("->", "<-", "<>"):
+            choice[edges[i]] = c
+            if consistent():
+                extend(i + 1)
+            del choice[edges[i]]
+
+    extend(0)
+    pag = {}
+    for a, b in edges:
+        ends = {(("arrow" if c in ("<-", "<>") else "tail"),
+                 ("arrow" if c in ("->", "<>") else "tail"))
+                for c in (m[(a, b)] for m in members)}
+        at_a = {e[0] for e in ends}
+        at_b = {e[1] for e in ends}
+        pag[(a, b)] = (at_a.pop() if len(at_a) == 1 else "circle",
+                       at_b.pop() if len(at_b) == 1 else "circle")
+    return pag, len(members)
+
+
+def true_mag(dag, latent):
+    """The MAG of a DAG over its observed variables (Richardson & Spirtes 2002, §4.2.3):
+    adjacent when no observed set separates them; a → b when a is an ancestor of b, else
+    a ↔ b."""
+    observed = sorted(set(dag.nodes) - set(latent))
+    directed, bidirected = [], []
+    for a, b in combinations(observed, 2):
+        if any(nx.is_d_separator(dag, {a}, {b}, set(s))
+               for s in _subsets(set(observed) - {a, b})):
+            continue
+        if a in nx.ancestors(dag, b):
+            directed.append((a, b))
+        elif b in nx.ancestors(dag, a):
+            directed.append((b, a))
+        else:
+            bidirected.append((a, b))
+    return directed, bidirected, observed
+
+
+def engine_pag(result):
+    out = {}
+    for e in result.edges:
+        a, b = sorted((e.source, e.target))
+        out[(a, b)] = (e.mark_at(a), e.mark_at(b))
+    return out
+
+
+def random_hidden_dag(rng, n_observed, n_latent, p_edge):
+    """A random DAG over observed v0.. and hidden h0..; each hidden variable gets two or
+    more observed children (so it is a common cause)."""
+    names = [f"v{i}" for i in range(n_observed)]
+    order = list(rng.permutation(names))
+    g = nx.DiGraph()
+    g.add_nodes_from(names)
+    for i, a in enumerate(order):
+        for b in order[i + 1:]:
+            if rng.random() < p_edge:
+                g.add_edge(a, b)
+    latent = []
+    for j in range(n_latent):
+        h = f"h{j}"
+        kids = rng.choice(names, size=2, replace=False)
+        g.add_edges_from((h, str(k)) for k in kids)
+        latent.append(h)
+    return g, latent
+
+
+def _check(dag, latent):
+    expected, n_members = reference_pag(dag, latent)
+    assert n_members >= 1
+    result = discover(None, test=DSeparationOracle(dag, latent=latent), hidden_causes=True)
+    assert engine_pag(result) == expected, (sorted(dag.edges), latent)
+    return n_members
+
+
+# -- checks ---------------------------------------------------------------------------------------
+
+
+def test_reference_contains_the_true_mag():
+    # the true MAG (Richardson & Spirtes 2002) is a member of its own class: a check of the
+    # brute-force reference itself
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y"), ("x", "c")])
+    directed, bidirected, observed = true_mag(dag, ["h"])
+    assert set(bidirected) == {("x", "y")}
+    assert _separations(_canonical_dag(directed, bidirected, observed), observed) == \
+        _separations(dag, observed)
+
+
+def test_textbook_hidden_cause_with_two_parents():
+    # a → x ← h → y ← b with h hidden gives a o→ x ↔ y ←o b (Zhang 2008, Fig. 1-style
+    # example; Spirtes, Glymour & Scheines 2000, §6.7)
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    result = discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True)
+    arrows = sorted(e.arrow() for e in result.edges)
+    assert arrows == ["a o→ x", "b o→ y", "x ↔ y"]
+    assert result.edge("x", "y").kind == "bidirected"
+    assert "collider" in result.edge("x", "y").to_reason
+    assert _check(dag, ["h"]) >= 1
+
+
+def test_discriminating_path_gives_a_tail():
+    # The standard R4 case: θ → a ← b? Here d *→ a ← ... built so that the only way to
+    # decide b's mark is a discriminating path <d, a, b, c> (Zhang 2008, §3, R4).
+    dag = nx.DiGraph([("d", "a"), ("a", "c"), ("b", "a"), ("b", "c"), ("h", "d"), ("h", "b")])
+    _check(dag, ["h"])
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_random_hidden_dags_match_the_brute_force_pag(seed):
+    rng = np.random.default_rng(seed)
+    dag, latent = random_hidden_dag(rng, n_observed=4 + seed % 2, n_latent=1 + seed % 2,
+                                    p_edge=0.35)
+    _check(dag, latent)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", range(100, 220))
+def test_random_hidden_dags_sweep(seed):
+    rng = np.random.default_rng(seed)
+    dag, latent = random_hidden_dag(rng, n_observed=4 + seed % 3, n_latent=1 + seed % 3,
+                                    p_edge=0.3 + 0.1 * (seed % 3))
+    _check(dag, latent)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_without_hidden_variables_arrowheads_match_the_cpdag_colliders(seed):
+    # Without hidden variables, an arrowhead in the PAG at z on x *→ z is found exactly at
+    # the colliders of the DAG's equivalence class (a fact of the trade: the CPDAG's
+    # unshielded colliders are the PAG's R0 arrowheads, Zhang 2008 §2), and the PAG never
+    # has an arrowhead the CPDAG lacks.
+    rng = np.random.default_rng(seed)
+    dag, _ = random_hidden_dag(rng, n_observed=6, n_latent=0, p_edge=0.4)
+    oracle = DSeparationOracle(dag)
+    pag = discover(None, test=oracle, hidden_causes=True)
+    cpdag = discover(None, test=oracle)
+    assert {e.pair for e in pag.edges} == {e.pair for e in cpdag.edges}
+    dag_colliders = {(z, frozenset((x, y))) for z in dag for x, y in
+                     combinations(sorted(dag.predecessors(z)), 2) if not dag.has_edge(x, y)
+                     and not dag.has_edge(y, x)}
+    pag_colliders = {(z, frozenset((x, y))) for z in dag for x, y in combinations(sorted(
+        v for v in dag if pag.edge(v, z) and pag.edge(v, z).mark_at(z) == "arrow"), 2)
+        if pag.edge(x, y) is None}
+    assert pag_colliders == dag_colliders
+    for e in pag.edges:
+        c = cpdag.edge(e.source, e.target)
+        for v in (e.source, e.target):
+            if e.mark_at(v) == "arrow":
+                assert c.kind == "directed" and c.target == v
+
+
+def test_possible_d_sep_removes_an_edge_the_adjacency_search_keeps():
+    # The classic case (Spirtes, Glymour & Scheines 2000, Fig. 6.17-style): a and d are
+    # separated only by a set containing a non-neighbour; FCI's second phase removes a–d.
+    dag = nx.DiGraph([("a", "b"), ("h1", "b"), ("h1", "d"), ("a", "c"), ("h2", "c"),
+                      ("h2", "d")])
+    latent = ["h1", "h2"]
+    oracle = DSeparationOracle(dag, latent=latent)
+    result = discover(None, test=oracle, hidden_causes=True)
+    expected, _ = reference_pag(dag, latent)
+    assert engine_pag(result) == expected
+    assert result.counts["pds_tests"] >= 0
+
+
+def test_knowledge_stage_order_adds_arrowheads():
+    # stage order: nothing later causes anything earlier, so an edge between stages has an
+    # arrowhead at its later end (Andrews, Spirtes & Cooper 2020, tiered knowledge)
+    dag = nx.DiGraph([("a", "b"), ("b", "c")])
+    oracle = DSeparationOracle(dag)
+    plain = discover(None, test=oracle, hidden_causes=True)
+    assert sorted(e.arrow() for e in plain.edges) == ["a o–o b", "b o–o c"]
+    staged = discover(None, test=oracle, hidden_causes=True,
+                      knowledge=Knowledge(stages=(("a",), ("b",), ("c",))))
+    marks = {e.arrow() for e in staged.edges}
+    # with a before b before c: b and c are not causes of a or b; rule 1 then gives the tail
+    assert "a o→ b" in marks or "a → b" in marks
+    assert staged.edge("b", "c").mark_at("c") == "arrow"
+    assert staged.edge("a", "b").reason_kind in ("stage order", "rule 1")
+
+
+def test_locked_direction_gives_tail_and_arrowhead():
+    dag = nx.DiGraph([("a", "b"), ("b", "c")])
+    result = discover(None, test=DSeparationOracle(dag), hidden_causes=True,
+                      knowledge=Knowledge(locked_directions=(("a", "b"),)))
+    e = result.edge("a", "b")
+    assert e.arrow() == "a → b" and e.reason_kind == "knowledge"
+
+
+def test_pds_budget_is_reported():
+    dag = nx.DiGraph([("a", "b"), ("h1", "b"), ("h1", "d"), ("a", "c"), ("h2", "c"),
+                      ("h2", "d")])
+    with pytest.warns(Warning, match="possible-d-separating-set phase stopped"):
+        result = discover(None, test=DSeparationOracle(dag, latent=["h1", "h2"]),
+                          hidden_causes=True, pds_budget=0)
+    assert any("budget" in n for n in result.notes)
+
+
+def test_bad_settings_are_refused():
+    from discovery import SettingsError
+    oracle = DSeparationOracle(nx.DiGraph([("a", "b")]))
+    with pytest.raises(SettingsError, match="hidden_causes"):
+        discover(None, test=oracle, hidden_causes="yes")
+    with pytest.raises(SettingsError, match="pds_budget"):
+        discover(None, test=oracle, hidden_causes=True, pds_budget=-1)
+
+
+def test_oracle_with_latent_answers_only_about_observed():
+    from discovery import DataValidationError
+    oracle = DSeparationOracle(nx.DiGraph([("u", "a"), ("u", "b")]), latent=["u"])
+    assert oracle.variables == ("a", "b")
+    assert oracle.test("a", "b").pvalue == 0.0  # d-connected through the hidden u
+    with pytest.raises(DataValidationError, match="not nodes"):
+        DSeparationOracle(nx.DiGraph([("u", "a")]), latent=["w"])
+    with pytest.raises(DataValidationError, match="at least two"):
+        DSeparationOracle(nx.DiGraph([("u", "a")]), latent=["u"])
+
+
+def test_result_round_trips_with_marks(tmp_path):
+    from discovery import load_result
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    result = discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True)
+    path = tmp_path / "r.json"
+    result.to_json(path)
+    back = load_result(path)
+    assert back.edges == result.edges
+    assert back.settings.hidden_causes is True
+    doc = result.to_dict()
+    assert {(e["from_mark"], e["to_mark"]) for e in doc["edges"]} == {
+        ("circle", "arrow"), ("arrow", "arrow")}
+    text = result.summary().as_text()
+    assert "hidden common cause" in text and "o→" in text
+
+
+def test_finite_sample_runs_with_every_test_kind():
+    from discovery.simulate import sample_linear_gaussian
+    rng = np.random.default_rng(3)
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    frame = sample_linear_gaussian(dag, 800, rng=rng).drop(columns=["h"])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = discover(frame, hidden_causes=True, alpha=0.01)
+    assert {e.pair for e in result.edges} == {frozenset(p) for p in
+                                             (("a", "x"), ("x", "y"), ("b", "y"))}
+    assert result.edge("x", "y").kind == "bidirected"
