@@ -100,6 +100,12 @@ _DOT_STYLE = {
     "undirected": {"dir": "none"},
     "contested": {"dir": "both", "arrowhead": "empty", "arrowtail": "empty",
                   "style": "dashed", "color": BRICK},
+    # the hidden-causes mode: a circle end is an open ring ("odot"), a bidirected edge has
+    # filled heads at both ends
+    "bidirected": {"dir": "both", "arrowhead": "normal", "arrowtail": "normal"},
+    "partially-directed": {"dir": "both", "arrowhead": "normal", "arrowtail": "odot"},
+    "nondirected": {"dir": "both", "arrowhead": "odot", "arrowtail": "odot"},
+    "partially-undirected": {"dir": "both", "arrowhead": "none", "arrowtail": "odot"},
 }
 
 
@@ -160,7 +166,8 @@ def write_dot(result: SearchResult, path=None) -> str:
             lines.append(f"  {_dot_id(v)} {_dot_attrs({'label': v})};")
     for e in result.edges:
         attrs = dict(_DOT_STYLE[e.kind])
-        attrs.update(kind=e.kind, reason=e.reason, reason_kind=e.reason_kind)
+        attrs.update(kind=e.kind, from_mark=e.from_mark, to_mark=e.to_mark, reason=e.reason,
+                     reason_kind=e.reason_kind)
         if not math.isnan(e.max_pvalue):
             attrs["max_pvalue"] = float(e.max_pvalue)
         attrs.update(tests=int(e.tests), locked=bool(e.locked),
@@ -185,6 +192,8 @@ _GRAPH_KEYS = [("g_format", "graph", "format", "string"),
                ("n_label", "node", "label", "string"),
                ("n_stage", "node", "stage", "int"),
                ("e_kind", "edge", "kind", "string"),
+               ("e_from_mark", "edge", "from_mark", "string"),
+               ("e_to_mark", "edge", "to_mark", "string"),
                ("e_reason", "edge", "reason", "string"),
                ("e_reason_kind", "edge", "reason_kind", "string"),
                ("e_max_pvalue", "edge", "max_pvalue", "double"),
@@ -260,6 +269,8 @@ def write_graphml(result: SearchResult, path=None) -> str:
         edge = ET.SubElement(graph, f"{{{_GRAPHML_NS}}}edge",
                              {"id": f"e{i}", "source": e.source, "target": e.target})
         data(edge, "e_kind", e.kind)
+        data(edge, "e_from_mark", e.from_mark)
+        data(edge, "e_to_mark", e.to_mark)
         data(edge, "e_reason", e.reason)
         data(edge, "e_reason_kind", e.reason_kind)
         data(edge, "e_max_pvalue", float(e.max_pvalue))

@@ -24,7 +24,7 @@ from ..independence._base import canonical_triple
 from ..result import Edge, LazyRecords, Removal, SearchResult, TestLog
 from ..settings import SearchSettings, check_parameter
 from ..knowledge import Knowledge
-from ._fci import PDS_TEST_BUDGET, possible_d_sep_phase
+from ._fci import PDS_AUTO_FACTOR, PDS_AUTO_MINIMUM, possible_d_sep_phase
 from ._orientation import orient
 from ._pag_orientation import MARK_NAMES, collider_marks, orient_pag
 from ._skeleton import adjacency_search
@@ -37,7 +37,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
              missing: str = "drop", columns=None, cache: PValueCache | None = None,
              executor=None, progress: Callable | None = None, cancel=None,
              test_options: dict | None = None, hidden_causes: bool = False,
-             pds_budget: int = PDS_TEST_BUDGET) -> SearchResult:
+             pds_budget="auto") -> SearchResult:
     """Search for the equivalence class of causal diagrams that fits the data.
 
     Parameters
@@ -73,9 +73,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         possible-d-separating-set phase, then Zhang's rules R1–R10) and return a partial
         ancestral graph whose edge ends are tails, arrowheads or circles (see
         docs/hidden-causes.md).
-    pds_budget : int
+    pds_budget : "auto", int or None
         In the hidden-causes mode, the most tests the possible-d-separating-set phase may
-        run; pairs left unchecked are reported with a :class:`SearchLimitWarning`.
+        run: ``"auto"`` allows four times the tests of the adjacency search (at least
+        5,000), None no limit. Pairs left unchecked are reported in the notes and with a
+        :class:`SearchLimitWarning`.
 
     Returns
     -------
@@ -126,9 +128,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                               collider_rule=collider_rule, missing=missing,
                               test_options=dict(test_options or {}),
                               hidden_causes=hidden_causes)
-    if isinstance(pds_budget, bool) or not isinstance(pds_budget, int) or pds_budget < 0:
-        raise SettingsError(f"The 'pds_budget' parameter of discover must be an int in "
-                            f"[0, inf). Got {pds_budget!r} instead.")
+    if not (pds_budget is None or pds_budget == "auto" or (
+            isinstance(pds_budget, int) and not isinstance(pds_budget, bool)
+            and pds_budget >= 0)):
+        raise SettingsError(f"The 'pds_budget' parameter of discover must be 'auto', None or "
+                            f"an int in [0, inf). Got {pds_budget!r} instead.")
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
@@ -205,10 +209,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                     else 64 * max(1, getattr(executor, "jobs", 1)),
                                     may_separate=lambda pairs: test_obj.may_separate(
                                         pairs, settings.alpha))
-        t1 = time.perf_counter()
+        t1 = t_pds = time.perf_counter()
         if settings.hidden_causes:
             _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
                                   cancelled, test_obj, executor, pds_budget, notes)
+            t_pds = time.perf_counter()
         separating_sets_of = None
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
@@ -242,7 +247,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                          dataset, test_obj, cache, hits0, misses0,
                          timings={"data_s": t_data - started,
                                   "test_setup_s": t0 - t_data,
-                                  "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
+                                  "skeleton_s": t1 - t0, "orientation_s": t2 - t_pds,
+                                  **({"possible_d_sep_s": t_pds - t1}
+                                     if settings.hidden_causes else {}),
                                   "total_s": time.perf_counter() - started})
 
 
@@ -250,12 +257,15 @@ def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, pro
                           cancelled, test_obj, executor, budget, notes):
     """FCI's second adjacency phase (:mod:`._fci`): edges are removed from ``skeleton`` in
     place, their separating sets recorded and the tests added to its log."""
+    if budget == "auto":
+        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * sum(len(p) for _, p in skeleton.log))
     marks = collider_marks(len(names), skeleton.adjacent, skeleton.sepsets, names=names,
                            rank=list(range(len(names))),
                            unseparated=skeleton.unseparated_forbidden)[0]
     phase = possible_d_sep_phase(
         skeleton.adjacent, marks, pvalues, alpha=settings.alpha, max_depth=depth,
-        locked=locked, budget=budget, progress=progress, cancelled=cancelled,
+        locked=locked, budget=float("inf") if budget is None else budget, progress=progress,
+        cancelled=cancelled,
         batch_limit=None if test_obj.vectorised else 64 * max(1, getattr(executor, "jobs", 1)))
     by_width = {}
     for x, y, s, p in phase["removed"]:

@@ -17,6 +17,11 @@ Prediction, and Search*, 2nd ed., §6.7) therefore:
    first independence, recording the set;
 5. orients the final skeleton from scratch (R0, then R1–R10).
 
+Only vertices that lie on a path between ``x`` and ``y`` can be needed in a separating set, so
+for the pair x — y the sets are cut to the biconnected component of the skeleton that holds
+the edge (every other path from x to y closes a cycle with the edge; Colombo, Maathuis,
+Kalisch & Richardson 2012, §3.3). On sparse graphs this removes most of the cost.
+
 Here the sets of step 3 are computed once on the graph of step 2 and removals take effect only
 at the end of the phase, so the result does not depend on the order of the variables (the
 "stable" version, Colombo, Maathuis, Kalisch & Richardson 2012, "Learning high-dimensional
@@ -40,10 +45,12 @@ import numpy as np
 from ..exceptions import SearchCancelled
 from ._pag_orientation import ARROW
 
-__all__ = ["possible_d_sep", "possible_d_sep_phase", "PDS_TEST_BUDGET"]
+__all__ = ["possible_d_sep", "possible_d_sep_phase", "PDS_AUTO_FACTOR", "PDS_AUTO_MINIMUM"]
 
-#: Default cap on the number of tests in the possible-d-sep phase.
-PDS_TEST_BUDGET = 200_000
+#: The automatic budget of the phase: this many times the adjacency search's tests ...
+PDS_AUTO_FACTOR = 4
+#: ... and at least this many tests.
+PDS_AUTO_MINIMUM = 5_000
 
 
 def possible_d_sep(x: int, adjacent, marks) -> set[int]:
@@ -68,7 +75,7 @@ def possible_d_sep(x: int, adjacent, marks) -> set[int]:
 
 
 def possible_d_sep_phase(adjacent, marks, pvalues, *, alpha, max_depth, locked=(),
-                         budget=PDS_TEST_BUDGET, progress=None, cancelled=None,
+                         budget=float("inf"), progress=None, cancelled=None,
                          batch_limit=None):
     """Test every remaining pair given subsets of its Possible-D-Sep sets.
 
@@ -83,8 +90,8 @@ def possible_d_sep_phase(adjacent, marks, pvalues, *, alpha, max_depth, locked=(
     alpha, max_depth : float, int or None
     locked : iterable of (int, int)
         Pairs that must stay adjacent (tested, and a separation is a conflict).
-    budget : int
-        Largest number of tests in this phase.
+    budget : int or float
+        Largest number of tests in this phase (``inf``: no limit).
 
     Returns
     -------
@@ -97,17 +104,20 @@ def possible_d_sep_phase(adjacent, marks, pvalues, *, alpha, max_depth, locked=(
     n = len(adjacent)
     locked = {(min(a, b), max(a, b)) for a, b in locked}
     pds = [possible_d_sep(v, adjacent, marks) for v in range(n)]
+    block_of = _blocks(adjacent)
     out = {"removed": [], "log": [], "levels": [], "tests": 0, "unfinished": [],
-           "locked_conflicts": [], "largest": max((len(p) for p in pds), default=0)}
+           "locked_conflicts": [], "largest": 0}
     pairs = [(x, y) for x in range(n) for y in sorted(adjacent[x]) if x < y]
     bases = {}
     for x, y in pairs:
-        bx = sorted(pds[x] - {x, y})
-        by = sorted(pds[y] - {x, y})
+        block = block_of[(x, y)]
+        bx = sorted((pds[x] & block) - {x, y})
+        by = sorted((pds[y] & block) - {x, y})
         # sets inside the final neighbours were all tried by the adjacency search
         if set(bx) <= adjacent[x] and set(by) <= adjacent[y]:
             continue
         bases[(x, y)] = (bx, by)
+        out["largest"] = max(out["largest"], len(bx), len(by))
     open_pairs = list(bases)
     top = max((max(len(bx), len(by)) for bx, by in bases.values()), default=0)
     if max_depth is not None:
@@ -177,6 +187,20 @@ def possible_d_sep_phase(adjacent, marks, pvalues, *, alpha, max_depth, locked=(
         if out["unfinished"]:
             break
         level += 1
+    return out
+
+
+def _blocks(adjacent) -> dict:
+    """``(x, y) -> vertices of the biconnected component holding the edge x — y`` (x < y)."""
+    import networkx as nx
+    g = nx.Graph()
+    g.add_nodes_from(range(len(adjacent)))
+    g.add_edges_from((a, b) for a in range(len(adjacent)) for b in adjacent[a] if a < b)
+    out = {}
+    for edges in nx.biconnected_component_edges(g):
+        members = frozenset(v for e in edges for v in e)
+        for a, b in edges:
+            out[(min(a, b), max(a, b))] = members
     return out
 
 
