@@ -169,7 +169,7 @@ class SearchJob:
                 max_depth=self.settings.max_depth, knowledge=knowledge,
                 collider_rule=self.settings.collider_rule, missing=self.settings.missing,
                 cache=_StoppableCache(self.cache, self.cancel), progress=report,
-                cancel=self.cancel)
+                cancel=self.cancel, hidden_causes=self.settings.hidden_causes)
         if not self.cancel.is_set():
             self.extras["positions"] = _layout.arrange(
                 self.dataset.variables, [(e.source, e.target) for e in result.edges],

@@ -72,6 +72,62 @@ def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: fl
     painter.restore()
 
 
+#: Kinds of the hidden-causes mode, drawn from their end marks (``from_mark`` at a, ``to_mark``
+#: at b): a circle end is a small open ring, an arrow end a filled head.
+PAG_MARKS = {"bidirected": ("arrow", "arrow"), "partially-directed": ("circle", "arrow"),
+             "nondirected": ("circle", "circle"), "partially-undirected": ("circle", "tail")}
+RING_RADIUS = 4.0
+
+
+def _ring(painter: QPainter, tip: QPointF, ux: float, uy: float, *, color: QColor,
+          scale: float):
+    """A small open ring touching ``tip``, on the line arriving along (ux, uy)."""
+    r = RING_RADIUS * scale
+    centre = QPointF(tip.x() - ux * r, tip.y() - uy * r)
+    painter.save()
+    painter.setPen(QPen(color, 1.4 * scale))
+    painter.setBrush(style.CANVAS)
+    painter.drawEllipse(centre, r, r)
+    painter.restore()
+
+
+def _draw_marked(painter, a, b, marks, *, control, locked, hover, selected, scale, faded):
+    """An edge of a partial ancestral graph: solid slate, each end drawn from its mark."""
+    path = QPainterPath(a)
+    if control is None:
+        path.lineTo(b)
+        tangent_a, tangent_b = QPointF(b - a), QPointF(b - a)
+    else:
+        path.quadTo(control, b)
+        tangent_a, tangent_b = QPointF(control - a), QPointF(b - control)
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    painter.save()
+    painter.setRenderHint(QPainter.Antialiasing)
+    painter.setBrush(Qt.NoBrush)
+    if faded:
+        painter.setOpacity(0.45)
+    if selected:
+        painter.setPen(QPen(style.SELECTED_HALO, width + 6 * scale, Qt.SolidLine, Qt.RoundCap))
+        painter.drawPath(path)
+    painter.setPen(QPen(style.SLATE, width, Qt.SolidLine, Qt.FlatCap))
+    painter.drawPath(path)
+    ends = ((b, tangent_b, 1.0, marks[1]), (a, tangent_a, -1.0, marks[0]))
+    for tip, tangent, sign, mark in ends:
+        ux, uy, _ = _unit(QPointF(0, 0), tangent)
+        if mark == "arrow":
+            _head(painter, tip, sign * ux, sign * uy, filled=True, color=style.SLATE,
+                  scale=scale)
+        elif mark == "circle":
+            _ring(painter, tip, sign * ux, sign * uy, color=style.SLATE, scale=scale)
+    if locked:
+        mid = path.pointAtPercent(0.5)
+        _double_bar(painter, QPointF(mid.x() - tangent_a.x() * 0.05,
+                                     mid.y() - tangent_a.y() * 0.05),
+                    QPointF(mid.x() + tangent_a.x() * 0.05, mid.y() + tangent_a.y() * 0.05),
+                    scale)
+    painter.restore()
+
+
 def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
               forbidden_heads=(), hover: bool = False, selected: bool = False,
               scale: float = 1.0, faded: bool = False, control: QPointF | None = None):
@@ -82,7 +138,13 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: b
     (legend sample: an undirected edge with the lock bar). ``forbidden_heads`` lists the ends
     ("a" or "b") whose arrowhead is forbidden; each gets a small cross. With ``control``, the
     edge is a quadratic curve through that control point (used to bend around a node).
+    The kinds of the hidden-causes mode (:data:`PAG_MARKS`) are drawn from their marks.
     """
+    if kind in PAG_MARKS:
+        _draw_marked(painter, a, b, PAG_MARKS[kind], control=control,
+                     locked=locked or kind == "locked", hover=hover, selected=selected,
+                     scale=scale, faded=faded)
+        return
     if control is not None:
         _draw_curved(painter, a, b, control, kind, locked=locked,
                      forbidden_heads=forbidden_heads, hover=hover, selected=selected,
@@ -511,12 +573,23 @@ class Legend(QWidget):
     ROWS = (("directed", "directed"), ("undirected", "undirected"),
             ("contested", "contested"), ("locked", "locked (knowledge)"),
             ("forbidden", "forbidden (knowledge)"))
+    #: Shown too when the diagram is a PAG (the hidden-causes mode).
+    PAG_ROWS = (("bidirected", "hidden common cause"),
+                ("partially-directed", "o: end not decided"),
+                ("nondirected", "either way, or hidden"))
 
     def __init__(self, parent):
         super().__init__(parent)
         self.setObjectName("canvasLegend")
         self.setAttribute(Qt.WA_TransparentForMouseEvents)
+        self.rows = self.ROWS
         self.setFixedSize(190, 18 * len(self.ROWS) + 12)
+
+    def show_marks(self, pag: bool) -> None:
+        """Add the hidden-causes marks to the key (or take them away)."""
+        self.rows = self.PAG_ROWS + self.ROWS if pag else self.ROWS
+        self.setFixedSize(190, 18 * len(self.rows) + 12)
+        self.update()
 
     def paintEvent(self, event):
         p = QPainter(self)
@@ -527,7 +600,7 @@ class Legend(QWidget):
         font = QFont(self.font())
         font.setPointSizeF(8.5)
         p.setFont(font)
-        for i, (mark, text) in enumerate(self.ROWS):
+        for i, (mark, text) in enumerate(self.rows):
             y = 14 + i * 18
             draw_edge(p, QPointF(10, y), QPointF(52, y), mark, scale=0.8)
             p.setPen(style.SLATE)
@@ -620,6 +693,10 @@ class GraphCanvas(QGraphicsView):
     # -- building ----------------------------------------------------------------------------
     def _on_structure(self, _=None):
         self._rebuild()
+        result = self.session.result
+        self.legend.show_marks(result is not None and any(
+            e.kind in PAG_MARKS for e in result.edges))
+        self._place_overlays()
 
     def _rebuild(self):
         s = self.session

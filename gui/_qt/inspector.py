@@ -263,7 +263,9 @@ class Inspector(QWidget):
                 colour = "#B5482F" if e.kind == "contested" else "#1B232B"
                 html.append(f"<p style='font-size:13px; color:{colour}'><b>"
                             f"{escape(e.arrow())}</b> ({e.kind})</p>")
-                if e.kind == "undirected":
+                if e.kind in _PAG_KINDS or r.settings.hidden_causes:
+                    html.append(_marks_html(e))
+                elif e.kind == "undirected":
                     html.append("<p>Direction: not determined by the data — both directions "
                                 "fit the independence pattern equally well.</p>")
                 else:
@@ -320,3 +322,22 @@ class Inspector(QWidget):
                     it.setForeground(QBrush(style.TEAL))
             for c, it in enumerate(items):
                 self.tests.setItem(row, c, it)
+
+
+_PAG_KINDS = ("bidirected", "partially-directed", "nondirected", "partially-undirected")
+_END_WORDS = {"arrow": "arrowhead: {v} is not a cause of {w}",
+              "tail": "tail: {v} is a cause of {w}",
+              "circle": "circle: the data cannot decide whether {v} is a cause of {w}"}
+
+
+def _marks_html(e) -> str:
+    """The meaning of a hidden-causes edge and of each of its ends, with the reasons."""
+    rows = [f"<p>Meaning: {escape(e.meaning().split(': ', 1)[1])}</p><p>"]
+    for v, w, mark, why in ((e.target, e.source, e.to_mark, e.to_reason),
+                            (e.source, e.target, e.from_mark, e.from_reason)):
+        text = _END_WORDS[mark].format(v=v, w=w)
+        rows.append(f"At <b>{escape(v)}</b>: {escape(text)}"
+                    + (f" — {escape(why)}" if why and mark != "circle" else "") + "<br>")
+    rows.append("</p><p style='color:#6B7178'>Hidden-causes mode: an edge need not be a "
+                "direct effect; o→ and o–o may hide a common cause.</p>")
+    return "".join(rows)
