@@ -49,6 +49,14 @@ STAGE_FILL = "#ECE9E2"
 
 CAUTION = ("Hypotheses from data, sound only under stated assumptions (no hidden common causes, "
            "no feedback, faithfulness) — see the result file and README")
+#: The caution of a result of the hidden-causes mode.
+CAUTION_HIDDEN = ("Hypotheses from data; hidden common causes allowed, but no feedback or "
+                  "selection bias assumed; o = an end the data cannot decide — see README")
+
+
+def caution_of(result: SearchResult) -> str:
+    """The caution line for ``result``'s search mode."""
+    return CAUTION_HIDDEN if result.settings.hidden_causes else CAUTION
 
 _GRAPHML_NS = "http://graphml.graphdrawing.org/xmlns"
 
@@ -56,6 +64,8 @@ _GRAPHML_NS = "http://graphml.graphdrawing.org/xmlns"
 def caption(result: SearchResult) -> str:
     """The one-line caption of an export: ``Edgewise · test fisher-z · α 0.05 · 500 rows``."""
     parts = ["Edgewise", f"test {result.settings.test}", f"α {result.settings.alpha:g}"]
+    if result.settings.hidden_causes:
+        parts.insert(1, "hidden causes allowed (FCI)")
     rows = result.data.get("rows")
     if rows is not None:
         parts.append(f"{rows} rows")
@@ -140,7 +150,7 @@ def write_dot(result: SearchResult, path=None) -> str:
     ['"a" -> "c"', '"b" -> "c"']
     """
     lines = [f"// {caption(result)}",
-             f"// {CAUTION}.",
+             f"// {caution_of(result)}.",
              "digraph edgewise {",
              "  graph " + _dot_attrs({"bgcolor": CANVAS, "rankdir": "LR", "labelloc": "b",
                                       "fontname": "DejaVu Sans", "fontsize": 9,

@@ -714,8 +714,12 @@ class Session:
         elapsed = time.perf_counter() - job.started
         self.append_log(
             f"run {job.run_id} done in {elapsed:.2f} s: {c.get('edges', 0)} edges "
-            f"({c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
-            f"{c.get('contested', 0)} contested); {c.get('tests', 0)} tests, "
+            + (f"({c.get('directed', 0)} directed, {c.get('bidirected', 0)} bidirected, "
+               f"{c.get('partially-directed', 0)} o→, {c.get('nondirected', 0)} o–o; hidden "
+               "causes allowed)" if result.settings.hidden_causes else
+               f"({c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
+               f"{c.get('contested', 0)} contested)")
+            + f"; {c.get('tests', 0)} tests, "
             f"{c.get('tests_from_cache', 0)} from the cache")
         for text in list(warnings_seen) + list(result.conflicts) + list(result.notes):
             self.append_log(f"note: {text}")

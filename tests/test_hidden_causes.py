@@ -373,3 +373,20 @@ def test_finite_sample_runs_with_every_test_kind():
     assert {e.pair for e in result.edges} == {frozenset(p) for p in
                                              (("a", "x"), ("x", "y"), ("b", "y"))}
     assert result.edge("x", "y").kind == "bidirected"
+
+
+def test_figure_draws_rings_and_double_heads(tmp_path):
+    # DESIGN.md §6: circle end = a small open ring; bidirected = filled heads at both ends
+    from discovery.drawing import draw_result
+    from discovery.io import write_dot
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    result = discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True)
+    path = tmp_path / "pag.svg"
+    draw_result(result, path)
+    svg = path.read_text(encoding="utf-8")
+    i = next(k for k, e in enumerate(result.edges) if e.kind == "bidirected")
+    assert f'id="head-{i}-source"' in svg and f'id="head-{i}-target"' in svg
+    assert svg.count('id="ring-') == 2  # a o→ x and b o→ y
+    assert "hidden common cause" in svg and "hidden causes allowed" in svg
+    dot = write_dot(result)
+    assert 'arrowtail="odot"' in dot and 'from_mark="circle"' in dot
