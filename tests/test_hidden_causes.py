@@ -390,3 +390,124 @@ def test_figure_draws_rings_and_double_heads(tmp_path):
     assert "hidden common cause" in svg and "hidden causes allowed" in svg
     dot = write_dot(result)
     assert 'arrowtail="odot"' in dot and 'from_mark="circle"' in dot
+
+
+def _hidden_frame(n=1500, seed=4, discrete=False):
+    """Invented data: a → x ← h → y ← b, h not measured."""
+    import pandas as pd
+    rng = np.random.default_rng(seed)
+    h, a, b = rng.normal(size=(3, n))
+    x = a + h + rng.normal(scale=0.7, size=n)
+    y = b + h + rng.normal(scale=0.7, size=n)
+    frame = pd.DataFrame({"a": a, "b": b, "x": x, "y": y})
+    if discrete:  # three levels each, by tertiles
+        frame = frame.apply(lambda c: pd.qcut(c, 3, labels=False)).astype("int64")
+    return frame
+
+
+@pytest.mark.parametrize("test", ["fisher-z", "g-squared", "mixed", "auto"])
+def test_every_test_kind_runs_in_this_mode(test):
+    frame = _hidden_frame(discrete=test == "g-squared", n=3000)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = discover(frame, test=test, hidden_causes=True, alpha=0.01)
+    assert result.settings.hidden_causes
+    assert {e.pair for e in result.edges} == {frozenset(p) for p in
+                                             (("a", "x"), ("x", "y"), ("b", "y"))}
+    assert result.edge("x", "y").to_mark == "arrow" == result.edge("x", "y").from_mark
+
+
+def test_kernel_test_runs_in_this_mode():
+    frame = _hidden_frame(n=300)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = discover(frame, test="kci", hidden_causes=True, alpha=0.01, max_depth=1)
+    assert result.settings.hidden_causes and result.counts["tests"] > 0
+
+
+def test_progress_cache_and_evidence_cover_the_second_phase():
+    from discovery import PValueCache
+    dag = nx.DiGraph([("a", "b"), ("h1", "b"), ("h1", "d"), ("a", "c"), ("h2", "c"),
+                      ("h2", "d")])
+    oracle = DSeparationOracle(dag, latent=["h1", "h2"])
+    events = []
+    cache = PValueCache()
+    first = discover(None, test=oracle, hidden_causes=True, cache=cache,
+                     progress=events.append)
+    assert first.counts["pds_tests"] > 0
+    assert any(ev["phase"] == "possible-d-sep" for ev in events)
+    assert len(first.tests) == first.counts["tests"]  # every test is in the evidence
+    again = discover(None, test=oracle, hidden_causes=True, cache=cache)
+    assert again.counts["tests_computed"] == 0 and again.edges == first.edges
+
+
+def test_cancel_stops_the_search():
+    from discovery import SearchCancelled
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    with pytest.raises(SearchCancelled, match="stopped"):
+        discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True,
+                 cancel=lambda: True)
+
+
+def test_both_directions_forbidden_give_a_bidirected_edge():
+    # "a is not a cause of b" and "b is not a cause of a": arrowheads at both ends
+    dag = nx.DiGraph([("a", "b")])
+    result = discover(None, test=DSeparationOracle(dag), hidden_causes=True,
+                      knowledge=Knowledge(forbidden_directions=(("a", "b"), ("b", "a"))))
+    assert result.edge("a", "b").kind == "bidirected"
+
+
+def test_edge_from_marks_and_bad_marks():
+    from discovery import Edge
+    e = Edge.from_marks("x", "y", "arrow", "circle", from_reason="r")
+    assert (e.source, e.target, e.kind, e.to_reason) == ("y", "x", "partially-directed", "r")
+    assert Edge("a", "b", "contested").arrow() == "a ?– b (contested)"  # never ↔
+    assert Edge("a", "b", "bidirected").arrow() == "a ↔ b"
+    with pytest.raises(ValueError, match="edge mark"):
+        Edge.from_marks("x", "y", "head", "tail")
+    with pytest.raises(ValueError, match="edge kind"):
+        Edge("x", "y", "sideways")
+
+
+def test_marks_that_disagree_with_the_kind_are_refused():
+    from discovery import ResultFormatError, SearchResult
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    doc = discover(None, test=DSeparationOracle(dag, latent=["h"]),
+                   hidden_causes=True).to_dict()
+    doc["edges"][0]["from_mark"] = "tail"
+    with pytest.raises(ResultFormatError, match="has marks"):
+        SearchResult.from_dict(doc)
+    old = discover(None, test=DSeparationOracle(nx.DiGraph([("a", "b")]))).to_dict()
+    for e in old["edges"]:  # a file written before marks existed still loads
+        del e["from_mark"], e["to_mark"]
+    assert SearchResult.from_dict(old).edges[0].from_mark == "tail"
+
+
+def test_simulation_helpers_and_scores():
+    from discovery import DataValidationError, SettingsError
+    from discovery.metrics import ancestral_mark_scores
+    from discovery.simulate import add_hidden_causes, random_dag
+    with pytest.raises(SettingsError, match="n_hidden"):
+        add_hidden_causes(random_dag(4, rng=0), -1)
+    with pytest.raises(SettingsError, match="two nodes"):
+        add_hidden_causes(random_dag(1, rng=0), 1)
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y")])
+    result = discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True)
+    scores = ancestral_mark_scores(result, dag)  # the oracle's marks are all right
+    assert scores.arrowhead_precision == 1.0 and scores.arrowheads == 4
+    with pytest.raises(DataValidationError, match="lacks"):
+        ancestral_mark_scores(result, nx.DiGraph([("a", "x")]))
+
+
+def test_command_line_option(tmp_path, capsys):
+    from discovery.cli import main
+    path = tmp_path / "h.csv"
+    _hidden_frame(n=3000).to_csv(path, index=False)
+    out = tmp_path / "r.json"
+    assert main(["discover", str(path), "--hidden-causes", "--alpha", "0.01",
+                 "--out", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "x ↔ y" in text and "hidden common cause" in text
+    import json
+    doc = json.loads(out.read_text(encoding="utf-8"))
+    assert doc["settings"]["hidden_causes"] is True
