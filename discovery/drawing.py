@@ -738,7 +738,8 @@ def _unit(v):
 #: The hidden-causes kinds, drawn from their end marks: a circle end is a small open ring,
 #: an arrow end a filled head (a bidirected edge has one at each end); solid slate lines.
 _PAG_LABELS = {"bidirected": "↔ hidden common cause", "partially-directed": "o→ end undecided",
-               "nondirected": "o–o either way or hidden", "partially-undirected": "o– end undecided"}
+               "nondirected": "o–o either way or hidden",
+               "partially-undirected": "o– end undecided"}
 _RING_R = 0.06
 
 

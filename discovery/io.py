@@ -36,7 +36,7 @@ import networkx as nx
 
 from .data import read_input_bytes
 from .exceptions import DataValidationError, DiscoveryError
-from .result import ASSUMPTIONS, SearchResult
+from .result import SearchResult
 
 __all__ = ["write_dot", "write_graphml", "read_graphml_dag", "read_edge_list", "caption"]
 
@@ -269,7 +269,7 @@ def write_graphml(result: SearchResult, path=None) -> str:
     data(graph, "g_alpha", result.settings.alpha)
     data(graph, "g_rows", result.data.get("rows"))
     data(graph, "g_knowledge", json.dumps(result.knowledge.to_dict(), ensure_ascii=False))
-    data(graph, "g_caution", CAUTION + ". " + " ".join(ASSUMPTIONS))
+    data(graph, "g_caution", caution_of(result) + ". " + " ".join(result.assumptions()))
     for v in result.variables:
         node = ET.SubElement(graph, f"{{{_GRAPHML_NS}}}node", {"id": v})
         data(node, "n_label", v)

@@ -15,7 +15,7 @@ not used, so MAGs have no undirected edges.
 from __future__ import annotations
 
 import warnings
-from itertools import combinations, product
+from itertools import combinations
 
 import networkx as nx
 import numpy as np

@@ -222,6 +222,10 @@ class Inspector(QWidget):
                    if e.kind == "contested" and name in (e.source, e.target)]
             rows = [("causes (parents)", parents), ("effects (children)", children),
                     ("undirected neighbours", und), ("contested neighbours", con)]
+            marked = [e.arrow() for e in r.edges
+                      if e.kind in _PAG_KINDS and name in (e.source, e.target)]
+            if marked or r.settings.hidden_causes:
+                rows.append(("edges with hidden-cause marks (↔, o→, o–o)", marked))
             html.append("<p>" + "<br>".join(
                 f"{label}: {escape(', '.join(v)) if v else '—'}" for label, v in rows) + "</p>")
         html.append("<p style='color:#6B7178'>Ctrl+click another node to act on the pair.</p>")
