@@ -195,7 +195,8 @@ def hidden_causes_benchmarks(*, quick: bool = False, progress=print) -> dict:
             lambda: discover(dataset, hidden_causes=True, pds_budget=None), 1)
         scores = {}
         seeds = range(3) if quick else range(10)
-        for rule, alpha in (("standard", 0.05), ("standard", 0.01), ("conservative", 0.01)):
+        for rule, alpha in (("standard", 0.05), ("standard", 0.001), ("majority", 0.001),
+                            ("conservative", 0.001)):
             good_h = all_h = good_t = all_t = 0
             for seed in seeds:
                 dag, data = _hidden_data(15, 2, 3, 5000, seed)
