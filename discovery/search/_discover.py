@@ -5,9 +5,9 @@ The steps, each in its own module: the order-independent adjacency search
 (:mod:`._orientation`; Spirtes, Glymour & Scheines 2000; Meek 1995). With
 ``hidden_causes=True`` the search is FCI: after the adjacency search comes the
 possible-d-separating-set phase (:mod:`._fci`), then the marks of a partial ancestral graph
-(:mod:`._pag_orientation`; Spirtes, Meek & Richardson 1999; Zhang 2008). Every p-value goes through
-one :class:`~discovery.independence.PValueCache`, so a second search with another α, depth,
-collider rule or knowledge reuses the tests already run.
+(:mod:`._pag_orientation`; Spirtes, Meek & Richardson 1999; Zhang 2008). Every p-value goes
+through one :class:`~discovery.independence.PValueCache`, so a second search with another α,
+depth, collider rule or knowledge reuses the tests already run.
 """
 
 from __future__ import annotations
