@@ -108,3 +108,14 @@ def test_marks_are_drawn_distinctly():
     assert _filled_near(bidirected, 19) > ring_ink  # filled heads at both ends
     assert set(PAG_MARKS) == {"bidirected", "partially-directed", "nondirected",
                               "partially-undirected"}
+
+
+def test_session_setting_is_validated_and_saved(tmp_path):
+    # the Qt-free model: the toggle's setting goes through the one constraint table
+    from discovery.settings import SearchSettings
+    from gui._session import Session
+    s = Session()
+    assert s.set_setting("hidden_causes", True) and s.settings.hidden_causes
+    assert not s.set_setting("hidden_causes", "yes")
+    assert s.settings.hidden_causes is True
+    assert SearchSettings.from_dict(s.settings.to_dict()).hidden_causes is True
