@@ -73,6 +73,10 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--hidden-causes", action="store_true", dest="hidden_causes",
                    help="allow unmeasured common causes (FCI): the result is a partial "
                         "ancestral graph with o→, ↔ and o–o edges (docs/hidden-causes.md)")
+    d.add_argument("--pds-budget", default="auto", metavar="N|none", dest="pds_budget",
+                   help="with --hidden-causes: most tests of the possible-d-separating-set "
+                        "phase ('none': no limit; default: four times the adjacency "
+                        "search's tests, at least 5,000)")
     d.add_argument("--columns", metavar="A,B,...",
                    help="comma-separated columns to include (default: all usable)")
     d.add_argument("--test-option", action="append", default=[], metavar="NAME=VALUE",
@@ -250,7 +254,8 @@ def _cmd_discover(args) -> int:
                               max_depth=args.max_depth, knowledge=knowledge,
                               collider_rule=args.collider_rule, executor=executor,
                               progress=progress, test_options=test_options or None,
-                              hidden_causes=args.hidden_causes)
+                              hidden_causes=args.hidden_causes,
+                              pds_budget=_pds_budget(args.pds_budget))
         finally:
             progress.close()
     if outputs["--out"]:
@@ -271,6 +276,20 @@ def _cmd_discover(args) -> int:
             print("\nWrote: " + ", ".join(str(p) for p in outputs.values() if p is not None))
         print("\n" + (CAUTION_HIDDEN if args.hidden_causes else CAUTION))
     return 0
+
+
+def _pds_budget(value: str):
+    """``--pds-budget``: 'auto', 'none' or a count of tests."""
+    if value in ("auto", "none"):
+        return None if value == "none" else "auto"
+    try:
+        budget = int(value)
+    except ValueError:
+        budget = -1
+    if budget < 0:
+        raise CommandError(f"--pds-budget {value}: give a number of tests (0 or more), "
+                           "'auto' or 'none'")
+    return budget
 
 
 def _parse_test_options(items, test) -> dict:

@@ -529,3 +529,13 @@ def test_arrowhead_precision_on_invented_data_with_hidden_causes():
         right += round(s.arrowhead_precision * s.arrowheads)
         total += s.arrowheads
     assert total > 50 and right / total >= 0.9
+
+
+def test_command_line_budget(tmp_path, capsys):
+    from discovery.cli import main
+    path = tmp_path / "h.csv"
+    _hidden_frame(n=500).to_csv(path, index=False)
+    assert main(["discover", str(path), "--hidden-causes", "--pds-budget", "lots"]) == 2
+    assert "--pds-budget lots" in capsys.readouterr().err
+    assert main(["discover", str(path), "--hidden-causes", "--pds-budget", "none",
+                 "--quiet"]) == 0
