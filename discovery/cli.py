@@ -23,6 +23,12 @@ CAUTION = ("Caution: these are hypotheses, sound only without hidden common caus
            "design and expert judgement (see the README).")
 
 
+CAUTION_HIDDEN = ("Caution: these are hypotheses; hidden common causes are allowed, but the "
+                  "search assumes no feedback loops, no selection bias, faithfulness, i.i.d. "
+                  "rows and a fitting test; a circle (o) marks an end the data could not "
+                  "decide. Weigh them with study design and expert judgement.")
+
+
 class CommandError(DiscoveryError):
     """A command-line problem (bad option value, unwritable output)."""
 
@@ -46,7 +52,8 @@ def _build_parser() -> argparse.ArgumentParser:
                     "diagrams that fits its conditional independences.",
         epilog="example:\n  edgewise discover example_sets/greenhouse/data.csv \\\n"
                "      --knowledge example_sets/greenhouse/knowledge.toml \\\n"
-               "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png")
+               "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png\n"
+               "  edgewise discover survey.csv --hidden-causes --out out/survey-pag.json")
     d.add_argument("data", nargs="?", help="CSV, TSV or Parquet file, one column per variable")
     d.add_argument("--test", default="fisher-z", choices=sorted(TEST_NAMES),
                    help="independence test (default: fisher-z)")
@@ -63,6 +70,13 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--missing", default="drop", choices=MISSING_POLICIES,
                    help="drop rows with any missing value, or delete test-wise "
                         "(default: drop)")
+    d.add_argument("--hidden-causes", action="store_true", dest="hidden_causes",
+                   help="allow unmeasured common causes (FCI): the result is a partial "
+                        "ancestral graph with o→, ↔ and o–o edges (docs/hidden-causes.md)")
+    d.add_argument("--pds-budget", default="auto", metavar="N|none", dest="pds_budget",
+                   help="with --hidden-causes: most tests of the possible-d-separating-set "
+                        "phase ('none': no limit; default: four times the adjacency "
+                        "search's tests, at least 5,000)")
     d.add_argument("--columns", metavar="A,B,...",
                    help="comma-separated columns to use (default: all usable; a column "
                         "named here is kept even if it looks like an identifier or a date)")
@@ -334,7 +348,9 @@ def _cmd_discover(args) -> int:
             result = discover(dataset, test=args.test, alpha=args.alpha,
                               max_depth=args.max_depth, knowledge=knowledge,
                               collider_rule=args.collider_rule, executor=executor,
-                              progress=progress, test_options=test_options or None)
+                              progress=progress, test_options=test_options or None,
+                              hidden_causes=args.hidden_causes,
+                              pds_budget=_pds_budget(args.pds_budget))
         finally:
             progress.close()
     from .drawing import draw_result
@@ -354,10 +370,24 @@ def _cmd_discover(args) -> int:
         written = [f"{opt} {p}" for opt, p in outputs.items() if p is not None]
         if written:
             print("\nWrote: " + ", ".join(str(p) for p in outputs.values() if p is not None))
-        print("\n" + CAUTION)
+        print("\n" + (CAUTION_HIDDEN if args.hidden_causes else CAUTION))
     for a, b in pairs:  # asked for explicitly: printed even with --quiet
         print(("\n" if not args.quiet else "") + explain_pair(result, a, b))
     return 0
+
+
+def _pds_budget(value: str):
+    """``--pds-budget``: 'auto', 'none' or a count of tests."""
+    if value in ("auto", "none"):
+        return None if value == "none" else "auto"
+    try:
+        budget = int(value)
+    except ValueError:
+        budget = -1
+    if budget < 0:
+        raise CommandError(f"--pds-budget {value}: give a number of tests (0 or more), "
+                           "'auto' or 'none'")
+    return budget
 
 
 def _parse_test_options(items, test) -> dict:

@@ -43,11 +43,11 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.font_manager import FontProperties
 from matplotlib.lines import Line2D
-from matplotlib.patches import BoxStyle, FancyBboxPatch, Polygon
+from matplotlib.patches import BoxStyle, Circle, FancyBboxPatch, Polygon
 from matplotlib.textpath import TextToPath
 
 from .exceptions import DiscoveryError
-from .io import BRICK, CANVAS, CAUTION, SLATE, STAGE_FILL, TEAL, caption
+from .io import BRICK, CANVAS, SLATE, STAGE_FILL, TEAL, caption, caution_of
 from .result import SearchResult
 
 __all__ = ["draw_result", "layout_positions", "box_size", "FIGURE_FORMATS"]
@@ -767,7 +767,51 @@ def _clear_spot(i, routes, pos, sizes) -> float:
     return float(ts[int(np.argmax(score))])
 
 
+#: The hidden-causes kinds, drawn from their end marks: a circle end is a small open ring,
+#: an arrow end a filled head (a bidirected edge has one at each end); solid slate lines.
+_PAG_LABELS = {"bidirected": "↔ hidden common cause", "partially-directed": "o→ end undecided",
+               "nondirected": "o–o either way or hidden",
+               "partially-undirected": "o– end undecided"}
+_RING_R = 0.06
+
+
+def _draw_marked_edge(ax, i, e, route, line_w, show_knowledge):
+    p, c, q, t0, t1 = route
+    start, end = t0, t1
+    for mark, t, toward, sign, side in ((e.to_mark, t1, 0.0, 1.0, "target"),
+                                        (e.from_mark, t0, 1.0, -1.0, "source")):
+        if mark == "tail":
+            continue
+        tip, d = _bezier(p, c, q, t), sign * _unit(_bezier_d(p, c, q, t))
+        if mark == "arrow":
+            _head(ax, tip, d, filled=True, color=SLATE, line_w=line_w, gid=f"head-{i}-{side}")
+            back = _HEAD_L * 0.92
+        else:
+            ax.add_patch(Circle(tuple(tip - d * _RING_R), _RING_R, facecolor=CANVAS,
+                                edgecolor=SLATE, linewidth=line_w, zorder=3,
+                                gid=f"ring-{i}-{side}"))
+            back = 2 * _RING_R
+        moved = _t_back(p, c, q, t, back, toward=toward)
+        start, end = (start, moved) if side == "target" else (moved, end)
+    straight = np.allclose(c, (p + q) / 2)
+    pts = _bezier(p, c, q, np.linspace(start, end, 2 if straight else 32))
+    ax.add_line(Line2D(pts[:, 0], pts[:, 1], color=SLATE, linewidth=line_w,
+                       solid_capstyle="butt", zorder=2, gid=f"edge-{i}"))
+    if show_knowledge and e.locked:  # the teal double bar of a locked pair
+        mid, tangent = _bezier(p, c, q, (t0 + t1) / 2), _unit(_bezier_d(p, c, q, (t0 + t1) / 2))
+        normal = np.array([-tangent[1], tangent[0]])
+        bars = [m + normal * k for m in (mid - tangent * 0.05, mid + tangent * 0.05)
+                for k in (-0.14, 0.14)]
+        xs = [bars[0][0], bars[1][0], np.nan, bars[2][0], bars[3][0]]
+        ys = [bars[0][1], bars[1][1], np.nan, bars[2][1], bars[3][1]]
+        ax.add_line(Line2D(xs, ys, color=TEAL, linewidth=line_w * 1.7,
+                           solid_capstyle="butt", zorder=4, gid=f"locked-{i}"))
+
+
 def _draw_edge(ax, i, e, route, line_w, show_knowledge, lock_t=None, font_pt=10.0):
+    if e.kind in _PAG_LABELS:
+        _draw_marked_edge(ax, i, e, route, line_w, show_knowledge)
+        return
     p, c, q, t0, t1 = route
     contested = e.kind == "contested"
     color = BRICK if contested else SLATE
@@ -867,13 +911,14 @@ def _draw_forbidden(ax, k, route, where, line_w, marks):
 
 _LEGEND_LABELS = {"directed": "directed", "undirected": "undirected",
                   "contested": "contested (?)", "untestable": "untestable (no p-value)",
-                  "locked": "locked", "forbidden": "forbidden", "stages": "stage"}
+                  "locked": "locked", "forbidden": "forbidden", "stages": "stage",
+                  **_PAG_LABELS}
 
 
 def _legend_entries(result, show_knowledge, bands) -> list[str]:
     """One entry for every kind of mark the figure draws, in a fixed order."""
     kinds = {e.kind for e in result.edges}
-    entries = [k for k in ("directed", "undirected", "contested") if k in kinds]
+    entries = [k for k in ("directed", "undirected", "contested", *_PAG_LABELS) if k in kinds]
     if any(e.untestable for e in result.edges):
         entries.append("untestable")
     if show_knowledge and any(e.locked for e in result.edges):
@@ -914,7 +959,7 @@ def _footer_layout(result, entries, width_pt) -> dict:
         x += w
     if row:
         rows.append(row)
-    caution = _wrap(CAUTION + ".", usable, 7.0)
+    caution = _wrap(caution_of(result).rstrip(".") + ".", usable, 7.0)
     height = 8 + 9 * len(caution) + 12 + 15 * max(len(rows), 1) + 4
     return {"rows": rows, "caution": caution, "height": max(height, _FOOTER_PT)}
 
@@ -969,6 +1014,8 @@ def _legend_glyph(ax, to_pt, entry, x, y, lw):
                            dashes=(3, 1.5), gid="legend-contested"))
         ax.text(x + 10, y, "?", transform=to_pt, ha="center", va="center_baseline",
                 fontsize=7, fontfamily=FONT, fontweight="bold", color=BRICK)
+    elif entry in _PAG_LABELS:
+        _legend_marked(ax, to_pt, x, y, entry, lw)
     elif entry == "untestable":
         ax.add_line(Line2D(seg[:, 0], seg[:, 1], transform=to_pt, color=SLATE, linewidth=lw,
                            gid="legend-untestable"))
@@ -983,6 +1030,24 @@ def _legend_glyph(ax, to_pt, entry, x, y, lw):
             ax.add_patch(Polygon([[x + 20, y], [x + 15, y + 2.2], [x + 15, y - 2.2]],
                                  closed=True, transform=to_pt, facecolor=SLATE,
                                  edgecolor=SLATE, linewidth=lw))
+
+
+def _legend_marked(ax, to_pt, x, y, kind, lw):
+    """The legend glyph of a hidden-causes kind: a line with a ring or a filled head at each
+    end, from the kind's marks."""
+    from .result import KIND_MARKS
+    marks = KIND_MARKS[kind]
+    left = x + (4 if marks[0] != "tail" else 0)
+    ax.add_line(Line2D([left, x + 15 if marks[1] == "arrow" else x + 16], [y, y],
+                       transform=to_pt, color=SLATE, linewidth=lw, gid=f"legend-{kind}"))
+    for mark, tip, sign in ((marks[1], x + 20, 1), (marks[0], x, -1)):
+        if mark == "arrow":
+            ax.add_patch(Polygon([[tip, y], [tip - 5 * sign, y + 2.2], [tip - 5 * sign, y - 2.2]],
+                                 closed=True, transform=to_pt, facecolor=SLATE,
+                                 edgecolor=SLATE, linewidth=lw))
+        elif mark == "circle":
+            ax.add_patch(Circle((tip - 2 * sign, y), 2, transform=to_pt, facecolor=CANVAS,
+                                edgecolor=SLATE, linewidth=lw))
 
 
 def _save(fig, path, fmt):

@@ -39,7 +39,7 @@ import networkx as nx
 
 from .data import read_input_bytes
 from .exceptions import DataValidationError, DiscoveryError
-from .result import ASSUMPTIONS, SearchResult
+from .result import SearchResult
 
 __all__ = ["write_dot", "write_graphml", "read_graphml_dag", "read_edge_list", "caption"]
 
@@ -52,6 +52,14 @@ STAGE_FILL = "#ECE9E2"
 
 CAUTION = ("Hypotheses from data, sound only under stated assumptions (no hidden common causes, "
            "no feedback, faithfulness) — see the result file and README")
+#: The caution of a result of the hidden-causes mode.
+CAUTION_HIDDEN = ("Hypotheses from data; hidden common causes allowed, but no feedback or "
+                  "selection bias assumed; o = an end the data cannot decide — see README")
+
+
+def caution_of(result: SearchResult) -> str:
+    """The caution line for ``result``'s search mode."""
+    return CAUTION_HIDDEN if result.settings.hidden_causes else CAUTION
 
 _GRAPHML_NS = "http://graphml.graphdrawing.org/xmlns"
 
@@ -59,6 +67,8 @@ _GRAPHML_NS = "http://graphml.graphdrawing.org/xmlns"
 def caption(result: SearchResult) -> str:
     """The one-line caption of an export: ``Edgewise · test fisher-z · α 0.05 · 500 rows``."""
     parts = ["Edgewise", f"test {result.settings.test}", f"α {result.settings.alpha:g}"]
+    if result.settings.hidden_causes:
+        parts.insert(1, "hidden causes allowed (FCI)")
     rows = result.data.get("rows")
     if rows is not None:
         parts.append(f"{rows} rows")
@@ -105,6 +115,12 @@ _DOT_STYLE = {
     "undirected": {"dir": "none"},
     "contested": {"dir": "none", "style": "dashed", "color": BRICK, "label": "?",
                   "fontcolor": BRICK, "fontname": "DejaVu Sans Bold"},
+    # the hidden-causes mode: a circle end is an open ring ("odot"), a bidirected edge has
+    # filled heads at both ends
+    "bidirected": {"dir": "both", "arrowhead": "normal", "arrowtail": "normal"},
+    "partially-directed": {"dir": "both", "arrowhead": "normal", "arrowtail": "odot"},
+    "nondirected": {"dir": "both", "arrowhead": "odot", "arrowtail": "odot"},
+    "partially-undirected": {"dir": "both", "arrowhead": "none", "arrowtail": "odot"},
 }
 
 
@@ -140,7 +156,7 @@ def write_dot(result: SearchResult, path=None) -> str:
     ['"a" -> "c"', '"b" -> "c"']
     """
     lines = [f"// {caption(result)}",
-             f"// {CAUTION}.",
+             f"// {caution_of(result)}.",
              "digraph edgewise {",
              "  graph " + _dot_attrs({"bgcolor": CANVAS, "rankdir": "LR", "labelloc": "b",
                                       "fontname": "DejaVu Sans", "fontsize": 9,
@@ -267,7 +283,7 @@ def write_graphml(result: SearchResult, path=None) -> str:
     data(graph, "g_alpha", result.settings.alpha)
     data(graph, "g_rows", result.data.get("rows"))
     data(graph, "g_knowledge", json.dumps(result.knowledge.to_dict(), ensure_ascii=False))
-    data(graph, "g_caution", CAUTION + ". " + " ".join(ASSUMPTIONS))
+    data(graph, "g_caution", caution_of(result) + ". " + " ".join(result.assumptions()))
     for v in result.variables:
         node = ET.SubElement(graph, f"{{{_GRAPHML_NS}}}node", {"id": v})
         data(node, "n_label", v)

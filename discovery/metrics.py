@@ -65,6 +65,8 @@ __all__ = [
     "arrowhead_scores",
     "structural_hamming_distance",
     "cpdag_of",
+    "AncestralMarkScores",
+    "ancestral_mark_scores",
 ]
 
 _UNDIRECTED = ("undirected",)
@@ -358,3 +360,58 @@ def cpdag_of(dag: nx.DiGraph) -> nx.DiGraph:
         if label[(x, y)] == "reversible":
             cpdag.add_edge(y, x)
     return cpdag
+
+
+@dataclass(frozen=True)
+class AncestralMarkScores:
+    """How often the arrowheads and tails of a PAG are right about the true DAG.
+
+    An arrowhead at ``b`` on ``a *→ b`` says ``b`` is not a cause (ancestor) of ``a``; a tail
+    at ``a`` on ``a –* b`` says ``a`` is a cause of ``b`` (Richardson & Spirtes 2002,
+    ancestral graphs; Zhang 2008). Each mark is judged against the ancestors in the true DAG,
+    hidden variables included, whether or not the edge itself is right.
+
+    Attributes
+    ----------
+    arrowhead_precision, tail_precision : float
+        Share of arrowheads (tails) that are right; 1.0 when there are none.
+    arrowheads, tails : int
+        How many were judged.
+    """
+
+    arrowhead_precision: float
+    tail_precision: float
+    arrowheads: int
+    tails: int
+
+
+def ancestral_mark_scores(result, dag: nx.DiGraph) -> AncestralMarkScores:
+    """Score the marks of a search result (e.g. the hidden-causes mode) against a true DAG.
+
+    Raises
+    ------
+    DataValidationError
+        If ``dag`` is not an acyclic DiGraph or lacks a variable of the result.
+    """
+    _check_graph(dag, "dag")
+    if not nx.is_directed_acyclic_graph(dag):
+        raise DataValidationError("`dag` must be acyclic")
+    missing = [v for v in result.variables if v not in dag]
+    if missing:
+        raise DataValidationError(f"the true DAG lacks the result's variable(s) {missing[:5]}")
+    heads = [0, 0]
+    tails = [0, 0]
+    for e in result.edges:
+        if e.kind == "contested":
+            continue
+        for near, far, mark in ((e.source, e.target, e.from_mark),
+                                (e.target, e.source, e.to_mark)):
+            ancestor = nx.has_path(dag, near, far)
+            if mark == "arrow":
+                heads[0] += not ancestor
+                heads[1] += 1
+            elif mark == "tail" and e.kind != "undirected":
+                tails[0] += ancestor
+                tails[1] += 1
+    return AncestralMarkScores(heads[0] / heads[1] if heads[1] else 1.0,
+                               tails[0] / tails[1] if tails[1] else 1.0, heads[1], tails[1])

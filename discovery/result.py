@@ -27,12 +27,13 @@ from .files import parse_json_checked, read_text_checked, write_text_atomic
 from .knowledge import Knowledge
 from .settings import SearchSettings
 
-__all__ = ["Edge", "Removal", "TestLog", "TestRecord", "PairEvidence", "SearchResult", "Summary",
+__all__ = ["HIDDEN_CAUSES_ASSUMPTIONS", "Edge", "EDGE_KINDS", "KIND_MARKS", "MARK_MEANINGS",
+           "Removal", "TestLog",
+           "TestRecord", "PairEvidence", "SearchResult", "Summary",
            "load_result", "ASSUMPTIONS"]
 
 FORMAT = "edgewise-result"
 VERSION = 1
-EDGE_KINDS = ("directed", "undirected", "contested")
 
 #: The reason given for an untestable pair when the test gives none of its own.
 NO_PVALUE = "the test returned no p-value"
@@ -48,6 +49,19 @@ ASSUMPTIONS = (
     "either way.",
     "The output is a set of hypotheses to weigh with study design and domain expertise; it is "
     "not on its own a basis for medical, safety, legal or policy decisions.",
+)
+
+#: The assumptions of the hidden-causes mode (FCI): hidden common causes are allowed.
+HIDDEN_CAUSES_ASSUMPTIONS = (
+    "This search allows unmeasured common causes of the measured variables; it is sound only "
+    "if: no feedback loops; no selection of rows that depends on the variables (selection "
+    "bias); faithfulness (independences in the data come from the diagram's structure, not "
+    "from cancelling effects); rows are independent and identically distributed; and the "
+    "independence test fits the data.",
+    "Finite samples make errors, and many tests are run: some edges and marks will be wrong.",
+    "A circle mark (o) means the data cannot decide that end: o→ and o–o edges may hide a "
+    "common cause, and an edge does not mean a direct effect when hidden causes act.",
+    ASSUMPTIONS[-1],
 )
 
 
@@ -190,19 +204,72 @@ class TestRecord:
         return [list(self.given), _num(self.pvalue)]
 
 
+#: The end marks of each edge kind, ``(from_mark, to_mark)``. The first three are the kinds of
+#: the search without hidden causes; the last four appear only in a partial ancestral graph
+#: (the hidden-causes mode). ``undirected`` (tail/tail) appears there only when the rules
+#: find an edge that no arrowhead can reach (a sign of selection bias or of errors).
+KIND_MARKS = {
+    "directed": ("tail", "arrow"),
+    "undirected": ("tail", "tail"),
+    "contested": ("tail", "tail"),
+    "bidirected": ("arrow", "arrow"),
+    "partially-directed": ("circle", "arrow"),
+    "nondirected": ("circle", "circle"),
+    "partially-undirected": ("circle", "tail"),
+}
+EDGE_KINDS = tuple(KIND_MARKS)
+MARKS = ("tail", "arrow", "circle")
+
+#: Text of each kind (``a MARK b``).
+_KIND_TEXT = {"directed": "→", "undirected": "—", "contested": "?–", "bidirected": "↔",
+              "partially-directed": "o→", "nondirected": "o–o", "partially-undirected": "o–"}
+
+#: What each kind of edge says, in plain words, with ``{a}`` and ``{b}`` for its ends.
+_MEANING_TEMPLATES = {
+    "directed": "{a} causes {b} (directly, or through steps not measured); {b} does not "
+                "cause {a}.",
+    "undirected": "{a} and {b} are adjacent; the data cannot tell the direction.",
+    "contested": "the data tried to orient this pair both ways; read it as adjacent with the "
+                 "direction unknown.",
+    "bidirected": "neither causes the other: {a} and {b} share a hidden common cause.",
+    "partially-directed": "{b} does not cause {a}; {a} may cause {b}, or a hidden common "
+                          "cause may drive both (possibly both at once).",
+    "nondirected": "{a} and {b} are adjacent and the data say nothing more: possibly either "
+                   "way, and a hidden common cause is possible.",
+    "partially-undirected": "{b} is a cause of {a} or of how the rows were selected; the "
+                            "circle end at {a} is undetermined (this mark needs selection "
+                            "bias or test errors).",
+}
+#: What each kind says, for generic ends ``a`` and ``b`` (summary, window, docs).
+MARK_MEANINGS = {k: f"a {_KIND_TEXT[k]} b" + (" (contested)" if k == "contested" else "")
+                 + ": " + t.format(a="a", b="b") for k, t in _MEANING_TEMPLATES.items()}
+
+#: Marks by the kind when the edge is read from ``source``'s side (to flip edges given by
+#: their marks into a kind).
+_MARKS_KIND = {m: k for k, m in KIND_MARKS.items() if k not in ("contested",)}
+
+
 @dataclass(frozen=True)
 class Edge:
-    """An edge of the result. For ``kind="directed"`` it reads ``source → target``.
+    """An edge of the result, with a mark at each end.
+
+    ``kind="directed"`` reads ``source → target``. The marks (``from_mark`` at ``source``,
+    ``to_mark`` at ``target``) are ``tail``, ``arrow`` or ``circle``; they follow from the
+    kind (see :data:`KIND_MARKS`), so readers can draw and interpret every search mode from
+    the marks alone. Build an edge from its marks with :meth:`from_marks`.
 
     Attributes
     ----------
     source, target : str
-    kind : {"directed", "undirected", "contested"}
+    kind : str
+        One of :data:`EDGE_KINDS`: ``directed``, ``undirected``, ``contested``, and in the
+        hidden-causes mode ``bidirected`` (↔), ``partially-directed`` (o→), ``nondirected``
+        (o–o) and ``partially-undirected`` (o–).
     reason : str
-        Why the arrowhead(s) are there ("" for an undirected edge).
+        Why the arrowhead(s) and tail(s) are there ("" for an undirected edge).
     reason_kind : str
-        ``collider``, ``rule 1`` … ``rule 4``, ``knowledge``, ``stage order``, ``contested``
-        or ``""``.
+        ``collider``, ``rule 1`` … ``rule 10``, ``discriminating path``, ``knowledge``,
+        ``stage order``, ``contested`` or ``""``.
     max_pvalue : float
         The largest p-value among the tests of this pair (NaN if none ran): the closest the
         data came to removing it.
@@ -216,6 +283,11 @@ class Edge:
         so the edge is kept because nothing removed it, not because the data showed a
         dependence. The text comes from the test (e.g. "too few rows to test given {z}"),
         or is "the test returned no p-value".
+    from_reason, to_reason : str
+        In the hidden-causes mode, why the mark at each end is an arrowhead or a tail ("" for
+        a circle, which means "not determined").
+    from_mark, to_mark : str
+        The marks at ``source`` and ``target`` (derived from ``kind``).
     """
 
     source: str
@@ -227,38 +299,76 @@ class Edge:
     tests: int = 0
     locked: bool = False
     untestable: str = ""
+    from_reason: str = ""
+    to_reason: str = ""
+    from_mark: str = field(init=False)
+    to_mark: str = field(init=False)
+
+    def __post_init__(self):
+        if self.kind not in KIND_MARKS:
+            raise ValueError(f"edge kind {self.kind!r} is not one of {EDGE_KINDS}")
+        marks = KIND_MARKS[self.kind]
+        object.__setattr__(self, "from_mark", marks[0])
+        object.__setattr__(self, "to_mark", marks[1])
+
+    @classmethod
+    def from_marks(cls, source: str, target: str, from_mark: str, to_mark: str,
+                   **fields) -> "Edge":
+        """The edge ``source from_mark–to_mark target``, its ends swapped when needed so that
+        it reads as one of :data:`EDGE_KINDS` (e.g. arrow/circle becomes ``target o→ source``).
+
+        Raises
+        ------
+        ValueError
+            If a mark is not one of ``tail``, ``arrow``, ``circle``.
+        """
+        for m in (from_mark, to_mark):
+            if m not in MARKS:
+                raise ValueError(f"edge mark {m!r} is not one of {MARKS}")
+        kind = _MARKS_KIND.get((from_mark, to_mark))
+        if kind is None:  # read from the other end
+            source, target = target, source
+            from_mark, to_mark = to_mark, from_mark
+            fields["from_reason"], fields["to_reason"] = (fields.get("to_reason", ""),
+                                                          fields.get("from_reason", ""))
+            kind = _MARKS_KIND[(from_mark, to_mark)]
+        return cls(source, target, kind, **fields)
 
     @property
     def pair(self) -> frozenset[str]:
         return frozenset((self.source, self.target))
 
-    @property
-    def from_mark(self) -> str:
-        """The mark at the ``source`` end: ``tail``, ``arrow`` or ``circle`` (one code path for
-        every search mode; a contested edge has tails at both ends, its kind says why)."""
-        return "tail"
-
-    @property
-    def to_mark(self) -> str:
-        """The mark at the ``target`` end: ``tail``, ``arrow`` or ``circle``."""
-        return "arrow" if self.kind == "directed" else "tail"
+    def mark_at(self, variable: str) -> str:
+        """The mark at ``variable``'s end of the edge."""
+        if variable == self.source:
+            return self.from_mark
+        if variable == self.target:
+            return self.to_mark
+        raise KeyError(f"{variable!r} is not an end of {self.arrow()}")
 
     def arrow(self) -> str:
-        """The edge as text: ``a → b``, ``a — b``, or ``a ?– b (contested)`` (a contested pair
+        """The edge as text: ``a → b``, ``a — b``, ``a ?– b (contested)`` (a contested pair
         has no heads: "?" says the data tried to orient it both ways; never ``↔``, which
-        reads as a hidden common cause)."""
-        if self.kind == "contested":
-            return f"{self.source} ?– {self.target} (contested)"
-        mark = {"directed": "→", "undirected": "—"}[self.kind]
-        return f"{self.source} {mark} {self.target}"
+        reads as a hidden common cause), or a hidden-causes mark (``a ↔ b``, ``a o→ b``,
+        ``a o–o b``, ``a o– b``)."""
+        text = f"{self.source} {_KIND_TEXT[self.kind]} {self.target}"
+        return text + " (contested)" if self.kind == "contested" else text
+
+    def meaning(self) -> str:
+        """What the marks of this edge say, in plain words, with its own variable names."""
+        return f"{self.arrow()}: " + _MEANING_TEMPLATES[self.kind].format(a=self.source,
+                                                                          b=self.target)
 
     def to_dict(self) -> dict:
-        return {"from": self.source, "to": self.target, "kind": self.kind,
-                "from_mark": self.from_mark, "to_mark": self.to_mark,
-                "reason": self.reason, "reason_kind": self.reason_kind,
-                "max_pvalue": _num(self.max_pvalue), "tests": self.tests,
-                "locked": self.locked, "untestable": bool(self.untestable),
-                "untestable_reason": self.untestable}
+        out = {"from": self.source, "to": self.target, "kind": self.kind,
+               "from_mark": self.from_mark, "to_mark": self.to_mark,
+               "reason": self.reason, "reason_kind": self.reason_kind,
+               "max_pvalue": _num(self.max_pvalue), "tests": self.tests,
+               "locked": self.locked, "untestable": bool(self.untestable),
+               "untestable_reason": self.untestable}
+        if self.from_reason or self.to_reason:
+            out.update(from_reason=self.from_reason, to_reason=self.to_reason)
+        return out
 
 
 class Removal(NamedTuple):
@@ -458,15 +568,17 @@ class SearchResult:
         return PairEvidence(a, b, edge is not None, edge, removal, tests, triples)
 
     def to_networkx(self) -> nx.DiGraph:
-        """A DiGraph: a directed edge is one arc; undirected and contested edges are two
-        opposite arcs. Every arc carries ``kind``, ``reason`` and ``max_pvalue``."""
+        """A DiGraph: a directed edge is one arc; every other kind is two opposite arcs. Every
+        arc carries ``kind``, ``reason``, ``max_pvalue`` and the marks at its own ends
+        (``from_mark`` at the arc's tail, ``to_mark`` at its head)."""
         g = nx.DiGraph()
         g.add_nodes_from(self.variables)
         for e in self.edges:
             attrs = {"kind": e.kind, "reason": e.reason, "max_pvalue": e.max_pvalue}
-            g.add_edge(e.source, e.target, **attrs)
+            g.add_edge(e.source, e.target, from_mark=e.from_mark, to_mark=e.to_mark, **attrs)
             if e.kind != "directed":
-                g.add_edge(e.target, e.source, **attrs)
+                g.add_edge(e.target, e.source, from_mark=e.to_mark, to_mark=e.from_mark,
+                           **attrs)
         return g
 
     def _repr_svg_(self) -> str:
@@ -518,8 +630,12 @@ class SearchResult:
             "data": dict(self.data),
             "software": dict(self.software),
             "seed": self.seed,
-            "assumptions": list(ASSUMPTIONS),
+            "assumptions": list(self.assumptions()),
         }
+
+    def assumptions(self) -> tuple[str, ...]:
+        """The assumptions and cautions of this result's search mode."""
+        return HIDDEN_CAUSES_ASSUMPTIONS if self.settings.hidden_causes else ASSUMPTIONS
 
     def to_json(self, path=None, *, indent: int | None = 1) -> str:
         """The JSON text; also written to ``path`` when given."""
@@ -580,10 +696,16 @@ def _from_dict(doc, source) -> SearchResult:
             untestable = str(e.get("untestable_reason") or "")
             if e.get("untestable") and not untestable:
                 untestable = NO_PVALUE
+            marks = KIND_MARKS[e["kind"]]
+            given = (e.get("from_mark", marks[0]), e.get("to_mark", marks[1]))
+            if given != marks:
+                fail(f"edge {e['from']!r} — {e['to']!r} of kind {e['kind']!r} has marks "
+                     f"{given[0]}/{given[1]}, but that kind has {marks[0]}/{marks[1]}")
             edges.append(Edge(e["from"], e["to"], e["kind"], e.get("reason", ""),
                               e.get("reason_kind", ""), _float(e.get("max_pvalue")),
                               int(e.get("tests", 0)), bool(e.get("locked", False)),
-                              untestable))
+                              untestable, str(e.get("from_reason", "")),
+                              str(e.get("to_reason", ""))))
         pairs = [frozenset((e.source, e.target)) for e in edges]
         if len(set(pairs)) != len(pairs):
             fail("two edges join the same pair")
@@ -715,10 +837,23 @@ class Summary:
             "alpha": r.settings.alpha,
             "max_depth": r.settings.max_depth,
             "collider_rule": r.settings.collider_rule,
+            "hidden_causes": r.settings.hidden_causes,
             "edges": [[e.source, e.target, e.kind, e.reason] for e in r.edges],
+            "marks": self.mark_meanings(),
             "counts": dict(r.counts),
             "notes": self.notes(),
         }
+
+    def mark_meanings(self) -> list[str]:
+        """What each kind of mark in this result means, in plain words (the hidden-causes
+        mode; empty for a result without circle or bidirected marks)."""
+        kinds = {e.kind for e in self.result.edges}
+        if not (kinds - {"directed", "undirected", "contested"}
+                or self.result.settings.hidden_causes):
+            return []
+        order = ("directed", "bidirected", "partially-directed", "nondirected",
+                 "partially-undirected", "undirected")
+        return [MARK_MEANINGS[k] for k in order if k in kinds]
 
     def notes(self) -> list[str]:
         """Conflicts and notes, each once, in order; then a line on untestable pairs."""
@@ -763,17 +898,25 @@ class Summary:
                 + (f", {r.data.get('rows')} rows" if r.data.get("rows") else "")
                 + f"; test {r.settings.test}, alpha {r.settings.alpha:g}, depth "
                 f"{'unlimited' if r.settings.max_depth is None else r.settings.max_depth}, "
-                f"collider rule {r.settings.collider_rule}")
-        lines = [head,
-                 f"{len(r.edges)} edges: {c.get('directed', 0)} directed, "
-                 f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested"
-                 + (f", {c.get('untestable', 0)} untestable" if c.get("untestable") else "")
-                 + f"; {self.counts_line()}", ""]
+                f"collider rule {r.settings.collider_rule}"
+                + ("; hidden common causes allowed (FCI)" if r.settings.hidden_causes else ""))
+        if r.settings.hidden_causes:
+            shown = [(k, c.get(k, 0)) for k in ("directed", "bidirected", "partially-directed",
+                                                 "nondirected", "partially-undirected",
+                                                 "undirected")]
+            tally = ", ".join(f"{n} {k}" for k, n in shown if n or k == "directed")
+        else:
+            tally = (f"{c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
+                     f"{c.get('contested', 0)} contested")
+        if c.get("untestable"):
+            tally += f", {c.get('untestable', 0)} untestable"
+        lines = [head, f"{len(r.edges)} edges: {tally}; {self.counts_line()}", ""]
         width = max([len(e.arrow()) for e in r.edges] + [4])
         lines.append(f"{'edge':<{width}}  {'max p':>9}  why")
         for e in r.edges:
             p = "-" if e.max_pvalue != e.max_pvalue else f"{e.max_pvalue:.3g}"
-            why = e.reason or "direction not determined by the data"
+            why = e.reason or ("no mark determined by the data" if e.kind == "nondirected"
+                               else "direction not determined by the data")
             if e.untestable:
                 why = f"untestable ({e.untestable}); " + why
             if e.locked:
@@ -782,6 +925,10 @@ class Summary:
         if not r.edges:
             lines.append("(no edges)")
         lines += self.legend_lines()
+        meanings = self.mark_meanings()
+        if meanings:
+            lines += ["", "What the marks mean (an end with a circle is one the data could not "
+                          "decide):"] + [f"  {m}" for m in meanings]
         alone = self.isolated()
         if alone:
             lines += ["", f"Isolated (no edge): {', '.join(alone)}"]
@@ -789,7 +936,7 @@ class Summary:
         if notes:
             lines += ["", "Notes:"] + [f"[{i}] {n}" for i, n in enumerate(notes, 1)]
         if assumptions:
-            lines += ["", "Assumptions: " + " ".join(ASSUMPTIONS)]
+            lines += ["", "Assumptions: " + " ".join(r.assumptions())]
         return "\n".join(lines)
 
     def legend_lines(self) -> list[str]:
@@ -827,13 +974,15 @@ class Summary:
             f"</td><td>{escape(e.reason or 'direction not determined by the data')}</td></tr>"
             for e in r.edges)
         notes = "".join(f"<li>{escape(n)}</li>" for n in self.notes())
-        assumptions = "".join(f"<li>{escape(a)}</li>" for a in ASSUMPTIONS)
+        assumptions = "".join(f"<li>{escape(a)}</li>" for a in r.assumptions())
+        meanings = "".join(f"<li>{escape(m)}</li>" for m in self.mark_meanings())
         words = "".join(f"<br>{escape(w)}" for w in self.legend_lines() if w)
         alone = self.isolated()
         return (f"<p>{len(r.variables)} variables; test {escape(r.settings.test)}, "
                 f"α = {r.settings.alpha:g}</p><table><tr><th>edge</th><th>max p</th>"
                 f"<th>why</th></tr>{rows}</table>"
                 + (f"<p><small>{words[4:]}</small></p>" if words else "")
+                + (f"<p>What the marks mean:</p><ul>{meanings}</ul>" if meanings else "")
                 + (f"<p>Isolated (no edge): {escape(', '.join(alone))}</p>" if alone else "")
                 + (f"<ol>{notes}</ol>" if notes else "")
                 + f"<p>Assumptions and cautions:</p><ul>{assumptions}</ul>")

@@ -13,7 +13,7 @@ from numbers import Integral, Real
 
 from .exceptions import SettingsError
 
-__all__ = ["Interval", "Choice", "PARAMETERS", "SearchSettings", "COLLIDER_RULES",
+__all__ = ["Interval", "Choice", "Flag", "PARAMETERS", "SearchSettings", "COLLIDER_RULES",
            "MISSING_POLICIES"]
 
 COLLIDER_RULES = ("standard", "conservative", "majority")
@@ -71,6 +71,19 @@ class Choice:
         return value in self.options
 
 
+@dataclass(frozen=True)
+class Flag:
+    """On or off (a bool)."""
+
+    help: str = ""
+
+    def describe(self) -> str:
+        return "True or False"
+
+    def accepts(self, value) -> bool:
+        return isinstance(value, bool)
+
+
 def _test_choice() -> Choice:
     from .independence import TEST_NAMES
     return Choice(tuple(TEST_NAMES) + ("d-separation",),
@@ -85,6 +98,8 @@ PARAMETERS = {
                           help="largest conditioning-set size (None: no limit)"),
     "collider_rule": Choice(COLLIDER_RULES, "how unshielded triples are judged colliders"),
     "missing": Choice(MISSING_POLICIES, "drop incomplete rows, or delete test-wise"),
+    "hidden_causes": Flag("allow hidden common causes of the measured variables (FCI: the "
+                          "result is a partial ancestral graph with circle marks)"),
 }
 
 
@@ -112,6 +127,7 @@ class SearchSettings:
     collider_rule: str = "standard"
     missing: str = "drop"
     test_options: tuple = ()  # (name, value) pairs given to the test, sorted by name
+    hidden_causes: bool = False
 
     def __post_init__(self):
         options = self.test_options
@@ -128,7 +144,7 @@ class SearchSettings:
         if not isinstance(self.test, str) or not self.test:
             raise SettingsError(f"The 'test' parameter must be a test name. Got "
                                 f"{self.test!r} instead.")
-        for name in ("alpha", "max_depth", "collider_rule", "missing"):
+        for name in ("alpha", "max_depth", "collider_rule", "missing", "hidden_causes"):
             check_parameter(name, getattr(self, name))
         object.__setattr__(self, "alpha", float(self.alpha))
         if self.max_depth is not None:
@@ -142,5 +158,5 @@ class SearchSettings:
     @classmethod
     def from_dict(cls, values: dict) -> "SearchSettings":
         known = {k: values[k] for k in ("test", "alpha", "max_depth", "collider_rule",
-                                        "missing", "test_options") if k in values}
+                                        "missing", "test_options", "hidden_causes") if k in values}
         return cls(**known)

@@ -43,7 +43,8 @@ import pandas as pd
 
 from .exceptions import DataValidationError, SettingsError
 
-__all__ = ["random_dag", "linear_gaussian_weights", "sample_linear_gaussian"]
+__all__ = ["random_dag", "add_hidden_causes", "linear_gaussian_weights",
+           "sample_linear_gaussian"]
 
 
 def _as_generator(rng) -> np.random.Generator:
@@ -158,6 +159,43 @@ def random_dag(n_nodes: int, *, expected_degree: float = 2.0, rng=None,
     edges = sorted(zip(sources.tolist(), targets.tolist()))
     dag.add_edges_from((names[s], names[t]) for s, t in edges)
     return dag
+
+
+def add_hidden_causes(dag: nx.DiGraph, n_hidden: int, *, rng=None,
+                      prefix: str = "hidden") -> tuple[nx.DiGraph, list[str]]:
+    """A copy of ``dag`` with ``n_hidden`` new common causes, each of two distinct variables
+    drawn at random (for studies of the hidden-causes search).
+
+    Returns
+    -------
+    (networkx.DiGraph, list of str)
+        The enlarged DAG and the names of the hidden variables (drop their columns from
+        sampled data to hide them).
+
+    Raises
+    ------
+    SettingsError
+        If ``n_hidden`` is negative or ``dag`` has fewer than two nodes.
+
+    Examples
+    --------
+    >>> dag, hidden = add_hidden_causes(random_dag(5, rng=0), 2, rng=0)
+    >>> hidden, [len(list(dag.successors(h))) for h in hidden]
+    (['hidden0', 'hidden1'], [2, 2])
+    """
+    k = _check_count(n_hidden, "n_hidden", minimum=0)
+    nodes = sorted(dag.nodes, key=str)
+    if k and len(nodes) < 2:
+        raise SettingsError("`dag` needs at least two nodes to give them a hidden common cause")
+    gen = _as_generator(rng)
+    out = dag.copy()
+    hidden = []
+    for i in range(k):
+        name = f"{prefix}{i}"
+        a, b = gen.choice(len(nodes), size=2, replace=False)
+        out.add_edges_from([(name, nodes[a]), (name, nodes[b])])
+        hidden.append(name)
+    return out, hidden
 
 
 def linear_gaussian_weights(dag: nx.DiGraph, *, low: float = 0.5, high: float = 1.5,

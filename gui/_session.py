@@ -179,7 +179,7 @@ class SearchJob:
                 max_depth=self.settings.max_depth, knowledge=knowledge,
                 collider_rule=self.settings.collider_rule, missing=self.settings.missing,
                 cache=_StoppableCache(self.cache, self.cancel), progress=report,
-                cancel=self.cancel)
+                cancel=self.cancel, hidden_causes=self.settings.hidden_causes)
         if not self.cancel.is_set():
             self.extras["positions"] = _layout.arrange(
                 self.dataset.variables, [(e.source, e.target) for e in result.edges],
@@ -1079,8 +1079,14 @@ def run_counts(result: SearchResult) -> str:
     """The counts of a result in words, as the run log and the status bar show them (the
     engine's own ``counts``, nothing recounted)."""
     c = result.counts
-    return (f"{c.get('edges', 0)} edges ({c.get('directed', 0)} directed, "
-            f"{c.get('undirected', 0)} undirected, {c.get('contested', 0)} contested); "
+    if result.settings.hidden_causes:
+        kinds = (f"{c.get('directed', 0)} directed, {c.get('bidirected', 0)} bidirected, "
+                 f"{c.get('partially-directed', 0)} o→, {c.get('nondirected', 0)} o–o; "
+                 "hidden causes allowed")
+    else:
+        kinds = (f"{c.get('directed', 0)} directed, {c.get('undirected', 0)} undirected, "
+                 f"{c.get('contested', 0)} contested")
+    return (f"{c.get('edges', 0)} edges ({kinds}); "
             f"{c.get('tests', 0)} tests, {c.get('tests_from_cache', 0)} from the cache")
 
 

@@ -9,6 +9,10 @@ oracle the reference for validating the search and a teaching aid.
 
 The answers come from networkx's d-separation (``networkx.is_d_separator``): p-value 1 for
 d-separated, 0 for d-connected.
+
+Some variables of the diagram may be *hidden* (``latent=[...]``): the oracle then answers only
+about the observed ones, as data would, which is what a search that allows hidden common
+causes (FCI) must be checked against (Spirtes, Glymour & Scheines 2000, ch. 6).
 """
 
 from __future__ import annotations
@@ -29,6 +33,15 @@ class DSeparationOracle(IndependenceTest):
     ----------
     dag : networkx.DiGraph
         The true diagram; must be acyclic. Node names become variable names (as strings).
+    latent : iterable of node names, optional
+        Hidden variables: they take part in d-separation but are not variables of the
+        oracle (they cannot be tested or conditioned on).
+
+    Raises
+    ------
+    DataValidationError
+        ``dag`` is not an acyclic DiGraph, a latent name is not a node, or fewer than two
+        variables would be observed.
 
     Examples
     --------
@@ -36,22 +49,36 @@ class DSeparationOracle(IndependenceTest):
     >>> oracle = DSeparationOracle(nx.DiGraph([("a", "c"), ("b", "c")]))
     >>> oracle.test("a", "b").pvalue, oracle.test("a", "b", ["c"]).pvalue
     (1.0, 0.0)
+    >>> hidden = DSeparationOracle(nx.DiGraph([("u", "a"), ("u", "b")]), latent=["u"])
+    >>> hidden.variables, hidden.test("a", "b").pvalue
+    (('a', 'b'), 0.0)
     """
 
     name = "d-separation"
     vectorised = True
 
-    def __init__(self, dag: nx.DiGraph):
+    def __init__(self, dag: nx.DiGraph, latent=()):
         if not isinstance(dag, nx.DiGraph):
             raise DataValidationError("DSeparationOracle needs a networkx.DiGraph")
         if not nx.is_directed_acyclic_graph(dag):
             raise DataValidationError(
                 f"the oracle's diagram has a cycle {nx.find_cycle(dag)}; give an acyclic graph")
         self.dag = nx.relabel_nodes(dag, {v: str(v) for v in dag.nodes}, copy=True)
-        self.variables = tuple(sorted(str(v) for v in dag.nodes))
+        if isinstance(latent, (str, bytes)):
+            latent = [latent]
+        self.latent = tuple(sorted(str(v) for v in latent))
+        unknown = [v for v in self.latent if v not in self.dag]
+        if unknown:
+            raise DataValidationError(f"latent variable(s) {unknown} are not nodes of the "
+                                      "oracle's diagram; name nodes of the DAG")
+        self.variables = tuple(sorted(str(v) for v in self.dag.nodes
+                                      if str(v) not in self.latent))
+        if len(self.variables) < 2:
+            raise DataValidationError(f"the oracle observes {len(self.variables)} variable(s) "
+                                      "after hiding the latent ones; at least two are needed")
         self.n = None
         edges = tuple(sorted(self.dag.edges))
-        self._key = ("d-separation", tuple(sorted(self.variables)), edges)
+        self._key = ("d-separation", tuple(sorted(self.variables)), edges, self.latent)
 
     def settings_key(self) -> tuple:
         return self._key

@@ -2,9 +2,12 @@
 
 The steps, each in its own module: the order-independent adjacency search
 (:mod:`._skeleton`, Colombo & Maathuis 2014), then knowledge, colliders and Meek's rules
-(:mod:`._orientation`; Spirtes, Glymour & Scheines 2000; Meek 1995). Every p-value goes through
-one :class:`~discovery.independence.PValueCache`, so a second search with another α, depth,
-collider rule or knowledge reuses the tests already run.
+(:mod:`._orientation`; Spirtes, Glymour & Scheines 2000; Meek 1995). With
+``hidden_causes=True`` the search is FCI: after the adjacency search comes the
+possible-d-separating-set phase (:mod:`._fci`), then the marks of a partial ancestral graph
+(:mod:`._pag_orientation`; Spirtes, Meek & Richardson 1999; Zhang 2008). Every p-value goes
+through one :class:`~discovery.independence.PValueCache`, so a second search with another α,
+depth, collider rule or knowledge reuses the tests already run.
 """
 
 from __future__ import annotations
@@ -24,7 +27,9 @@ from ..independence._base import canonical_triple
 from ..result import Edge, LazyRecords, Removal, SearchResult, TestLog
 from ..settings import SearchSettings, check_parameter
 from ..knowledge import Knowledge
+from ._fci import PDS_AUTO_FACTOR, PDS_AUTO_MINIMUM, possible_d_sep_phase
 from ._orientation import orient
+from ._pag_orientation import MARK_NAMES, collider_marks, orient_pag
 from ._skeleton import adjacency_search
 
 __all__ = ["discover"]
@@ -34,7 +39,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
              knowledge: Knowledge | None = None, collider_rule: str = "standard",
              missing: str = "drop", columns=None, cache: PValueCache | None = None,
              executor=None, progress: Callable | None = None, cancel=None,
-             test_options: dict | None = None) -> SearchResult:
+             test_options: dict | None = None, hidden_causes: bool = False,
+             pds_budget="auto") -> SearchResult:
     """Search for the equivalence class of causal diagrams that fits the data.
 
     Parameters
@@ -65,6 +71,16 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         When it returns True (or is set), the search stops with ``SearchCancelled``.
     test_options : dict, optional
         Extra keyword arguments for the test's constructor.
+    hidden_causes : bool
+        Allow unmeasured common causes of the measured variables: run FCI (the
+        possible-d-separating-set phase, then Zhang's rules R1–R10) and return a partial
+        ancestral graph whose edge ends are tails, arrowheads or circles (see
+        docs/hidden-causes.md).
+    pds_budget : "auto", int or None
+        In the hidden-causes mode, the most tests the possible-d-separating-set phase may
+        run: ``"auto"`` allows four times the tests of the adjacency search (at least
+        5,000), None no limit. Pairs left unchecked are reported in the notes and with a
+        :class:`SearchLimitWarning`.
 
     Returns
     -------
@@ -115,7 +131,13 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                             f"IndependenceTest. Got {type(test).__name__} instead.")
     settings = SearchSettings(test=test_name, alpha=alpha, max_depth=max_depth,
                               collider_rule=collider_rule, missing=missing,
-                              test_options=dict(test_options or {}))
+                              test_options=dict(test_options or {}),
+                              hidden_causes=hidden_causes)
+    if not (pds_budget is None or pds_budget == "auto" or (
+            isinstance(pds_budget, int) and not isinstance(pds_budget, bool)
+            and pds_budget >= 0)):
+        raise SettingsError(f"The 'pds_budget' parameter of discover must be 'auto', None or "
+                            f"an int in [0, inf). Got {pds_budget!r} instead.")
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
@@ -196,20 +218,33 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                     else 64 * max(1, getattr(executor, "jobs", 1)),
                                     may_separate=lambda pairs: test_obj.may_separate(
                                         pairs, settings.alpha))
-        t1 = time.perf_counter()
-        hits1, misses1 = cache.hits, cache.misses  # the skeleton's tests: those in the log
+        t1 = t_pds = time.perf_counter()
+        if settings.hidden_causes:
+            _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
+                                  cancelled, test_obj, executor, pds_budget, notes)
+            t_pds = time.perf_counter()
+        hits1, misses1 = cache.hits, cache.misses  # the search's tests: those in the log
         separating_sets_of = None
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
                 skeleton.adjacent,
                 lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
                 settings.alpha, depth, cancelled)
-        orientation = orient(
-            skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
-            collider_rule=settings.collider_rule,
-            locked_directions=[(index[a], index[b]) for a, b in knowledge.locked_directions],
-            why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
-            unseparated=skeleton.unseparated_forbidden)
+        if settings.hidden_causes:
+            orientation = orient_pag(
+                skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
+                collider_rule=settings.collider_rule, separating_sets_of=separating_sets_of,
+                unseparated=skeleton.unseparated_forbidden,
+                locked_directions=[(index[a], index[b]) for a, b in knowledge.locked_directions],
+                why_forbidden=why_forbidden)
+        else:
+            orientation = orient(
+                skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
+                collider_rule=settings.collider_rule,
+                locked_directions=[(index[a], index[b])
+                                   for a, b in knowledge.locked_directions],
+                why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
+                unseparated=skeleton.unseparated_forbidden)
     t2 = time.perf_counter()
     for x, y, s, p in skeleton.locked_conflicts:
         orientation.conflicts.insert(0, (
@@ -222,8 +257,53 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                          dataset, test_obj, cache, (hits0, misses0, hits1, misses1),
                          timings={"data_s": t_data - started,
                                   "test_setup_s": t0 - t_data,
-                                  "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
+                                  "skeleton_s": t1 - t0, "orientation_s": t2 - t_pds,
+                                  **({"possible_d_sep_s": t_pds - t1}
+                                     if settings.hidden_causes else {}),
                                   "total_s": time.perf_counter() - started})
+
+
+def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
+                          cancelled, test_obj, executor, budget, notes):
+    """FCI's second adjacency phase (:mod:`._fci`): edges are removed from ``skeleton`` in
+    place, their separating sets recorded and the tests added to its log."""
+    if budget == "auto":
+        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * sum(len(p) for _, p in skeleton.log))
+    marks = collider_marks(len(names), skeleton.adjacent, skeleton.sepsets, names=names,
+                           rank=list(range(len(names))),
+                           unseparated=skeleton.unseparated_forbidden)[0]
+    phase = possible_d_sep_phase(
+        skeleton.adjacent, marks, pvalues, alpha=settings.alpha, max_depth=depth,
+        locked=locked, budget=float("inf") if budget is None else budget, progress=progress,
+        cancelled=cancelled,
+        batch_limit=None if test_obj.vectorised else 64 * max(1, getattr(executor, "jobs", 1)))
+    by_width = {}
+    for x, y, s, p in phase["removed"]:
+        skeleton.adjacent[x].discard(y)
+        skeleton.adjacent[y].discard(x)
+        by_width.setdefault(len(s), []).append(((x, y, *s), p))
+    for width in sorted(by_width):
+        rows, ps = zip(*by_width[width])
+        skeleton.sepsets.record(np.asarray(rows, dtype=np.intp).reshape(len(rows), -1),
+                                np.asarray(ps, dtype=float))
+    skeleton.log.extend(phase["log"])
+    skeleton.levels.extend(phase["levels"])
+    skeleton.locked_conflicts.extend(phase["locked_conflicts"])
+    skeleton.pds = {"tests": phase["tests"], "removed": len(phase["removed"]),
+                    "largest_set": phase["largest"], "unfinished": len(phase["unfinished"])}
+    if phase["unfinished"]:
+        text = (f"the possible-d-separating-set phase stopped at its budget of {budget:,} "
+                f"tests; {len(phase['unfinished'])} pair(s) were not fully checked and may "
+                "keep edges that a hidden-cause-aware search would remove: "
+                + ", ".join(f"{names[x]} — {names[y]}" for x, y in phase["unfinished"][:10])
+                + (" …" if len(phase["unfinished"]) > 10 else ""))
+        notes.append(text)
+        import warnings
+        from ..exceptions import SearchLimitWarning
+        warnings.warn(text, SearchLimitWarning, stacklevel=3)
+    if depth is not None and phase["largest"] > depth:
+        notes.append(f"possible-d-separating sets have up to {phase['largest']} variables; "
+                     f"subsets were tried up to the depth limit {depth}")
 
 
 def _as_dataset(data, *, columns, missing):
@@ -363,7 +443,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
                                    test_obj.inner if isinstance(test_obj, NameOrderedTest)
                                    else test_obj)
     locked_pairs = knowledge.required_adjacent()
-    heads = orientation.heads
+    heads = getattr(orientation, "heads", None)
     pairs = [(x, y) for x in range(n) for y in skeleton.adjacent[x] if key(x) < key(y)]
     flat = np.array([x * n + y for x, y in pairs], dtype=np.int64)
     if keys is None:
@@ -375,9 +455,13 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     largest = np.where(ran, max_p[at] if len(max_p) else np.nan, np.nan)
     largest = np.where(np.isfinite(largest), largest, np.nan).tolist()
     edges = []
+    marks = getattr(orientation, "marks", None)  # a PAG (the hidden-causes mode)
     for (x, y), count, mp in zip(pairs, tests_run, largest):
         locked = bool(locked_pairs) and frozenset((names[x], names[y])) in locked_pairs
         why_not = untestable.get((x, y), "")
+        if marks is not None:
+            edges.append(_pag_edge(orientation, names, x, y, mp, count, locked, why_not))
+            continue
         hx, hy = (y, x) in heads, (x, y) in heads
         if hx and hy:
             reason = "; ".join(orientation.reason(e)[1] for e in ((x, y), (y, x)))
@@ -421,6 +505,13 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
               "collider_tests_from_cache": cache.hits - hits1,
               "untestable": sum(1 for e in edges if e.untestable),
               "depth_reached": skeleton.depth_reached, "levels": list(skeleton.levels)}
+    if marks is not None:
+        for kind in ("bidirected", "partially-directed", "nondirected",
+                     "partially-undirected"):
+            counts[kind] = kinds.count(kind)
+        pds = getattr(skeleton, "pds", {})
+        counts.update({f"pds_{k}": v for k, v in pds.items()})
+        counts["rules_fired"] = dict(sorted(orientation.fired.items()))
     data = {"rows": getattr(test_obj, "n", None), "columns": len(names)}
     if dataset is not None:
         data.update(rows=dataset.rows_used, rows_read=dataset.rows_read,
@@ -441,6 +532,24 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
         software=_software(), seed=getattr(test_obj, "seed", None))
+
+
+def _pag_edge(orientation, names, x, y, max_pvalue, tests, locked, untestable="") -> Edge:
+    """The PAG edge x–y with its marks and a reason for each arrowhead and tail."""
+    m = orientation.marks
+    at_x, at_y = MARK_NAMES[int(m[y, x])], MARK_NAMES[int(m[x, y])]
+    kind_x, why_x = orientation.end_reason(y, x)
+    kind_y, why_y = orientation.end_reason(x, y)
+    parts = [f"{'arrowhead' if mark == 'arrow' else 'tail'} at {names[v]}: {why}"
+             for v, mark, why in ((y, at_y, why_y), (x, at_x, why_x))
+             if mark != "circle" and why]
+    if why_x and why_x == why_y:
+        parts = [why_x]
+    kind = kind_y if at_y != "circle" and kind_y else kind_x
+    return Edge.from_marks(names[x], names[y], at_x, at_y, reason="; ".join(parts),
+                           reason_kind=kind, max_pvalue=max_pvalue, tests=tests,
+                           locked=locked, untestable=untestable, from_reason=why_x,
+                           to_reason=why_y)
 
 
 class NameOrderedTest(IndependenceTest):

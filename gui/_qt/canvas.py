@@ -83,6 +83,9 @@ KIND_MARKS = {
     "bidirected": ("arrow", "arrow"), "partially-directed": ("circle", "arrow"),
     "nondirected": ("circle", "circle"), "partially-undirected": ("circle", "tail"),
 }
+#: The kinds of the hidden-causes mode and their marks (drawn by the same code as the rest).
+PAG_MARKS = {k: KIND_MARKS[k] for k in ("bidirected", "partially-directed", "nondirected",
+                                          "partially-undirected")}
 RING_R = 4.0
 BADGE_R = 7.0
 
@@ -754,6 +757,7 @@ class GraphCanvas(QGraphicsView):
     # -- building ----------------------------------------------------------------------------
     def _on_structure(self, _=None):
         self._rebuild()
+        self._place_overlays()
 
     def _rebuild(self):
         s = self.session

@@ -229,6 +229,10 @@ class Inspector(QWidget):
                    if e.kind == "contested" and name in (e.source, e.target)]
             rows = [("causes (parents)", parents), ("effects (children)", children),
                     ("undirected neighbours", und), ("contested neighbours", con)]
+            marked = [e.arrow() for e in r.edges
+                      if e.kind in _PAG_KINDS and name in (e.source, e.target)]
+            if marked or r.settings.hidden_causes:
+                rows.append(("edges with hidden-cause marks (↔, o→, o–o)", marked))
             html.append("<p>" + "<br>".join(
                 f"{label}: {escape(', '.join(v)) if v else '—'}" for label, v in rows) + "</p>")
         html.append("<p style='color:#6B7178'>Ctrl+click another node to act on the pair.</p>")
@@ -273,7 +277,9 @@ class Inspector(QWidget):
                     words += f" ({e.kind})"
                 html.append(f"<p style='font-size:13px; color:{colour}'><b>"
                             f"{escape(words)}</b></p>")
-                if e.kind == "undirected":
+                if e.kind in _PAG_KINDS or r.settings.hidden_causes:
+                    html.append(_marks_html(e))
+                elif e.kind == "undirected":
                     html.append("<p>Direction: not determined by the data — both directions "
                                 "fit the independence pattern equally well.</p>")
                 else:
@@ -332,3 +338,22 @@ class Inspector(QWidget):
                     it.setForeground(QBrush(style.TEAL))
             for c, it in enumerate(items):
                 self.tests.setItem(row, c, it)
+
+
+_PAG_KINDS = ("bidirected", "partially-directed", "nondirected", "partially-undirected")
+_END_WORDS = {"arrow": "arrowhead: {v} is not a cause of {w}",
+              "tail": "tail: {v} is a cause of {w}",
+              "circle": "circle: the data cannot decide whether {v} is a cause of {w}"}
+
+
+def _marks_html(e) -> str:
+    """The meaning of a hidden-causes edge and of each of its ends, with the reasons."""
+    rows = [f"<p>Meaning: {escape(e.meaning().split(': ', 1)[1])}</p><p>"]
+    for v, w, mark, why in ((e.target, e.source, e.to_mark, e.to_reason),
+                            (e.source, e.target, e.from_mark, e.from_reason)):
+        text = _END_WORDS[mark].format(v=v, w=w)
+        rows.append(f"At <b>{escape(v)}</b>: {escape(text)}"
+                    + (f" — {escape(why)}" if why and mark != "circle" else "") + "<br>")
+    rows.append("</p><p style='color:#6B7178'>Hidden-causes mode: an edge need not be a "
+                "direct effect; o→ and o–o may hide a common cause.</p>")
+    return "".join(rows)

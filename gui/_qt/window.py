@@ -13,7 +13,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QSettings, QSize, Qt, QTimer
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import (QApplication, QComboBox, QDialog, QDialogButtonBox,
+from PySide6.QtWidgets import (QApplication, QCheckBox, QComboBox, QDialog, QDialogButtonBox,
                                QDockWidget, QFileDialog, QHBoxLayout, QLabel, QLineEdit,
                                QMainWindow, QMessageBox, QPlainTextEdit, QProgressBar,
                                QPushButton, QSlider, QSpinBox, QToolBar, QToolButton,
@@ -349,6 +349,15 @@ class MainWindow(QMainWindow):
             lambda i: self.session.set_setting("collider_rule",
                                                self.collider_choice.itemData(i)))
         tb.addWidget(self.collider_choice)
+        self.hidden_toggle = QCheckBox("Hidden causes")
+        self.hidden_toggle.setObjectName("hiddenCausesToggle")
+        self.hidden_toggle.setToolTip(
+            "Allow unmeasured common causes (FCI): edges get circle marks (o, an end the data "
+            "cannot decide) and ↔ (a hidden common cause). "
+            + PARAMETERS["hidden_causes"].help)
+        self.hidden_toggle.toggled.connect(
+            lambda on: self.session.set_setting("hidden_causes", bool(on)))
+        tb.addWidget(self.hidden_toggle)
         tb.addSeparator()
         add(self.act_auto, "autoRunToggle")
         add(self.act_arrange, "arrangeButton")
@@ -499,7 +508,7 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------------------ model → UI
     def _on_settings(self, settings):
         with signals_blocked(self.test_choice, self.alpha_slider, self.alpha_box,
-                             self.depth_box, self.collider_choice):
+                             self.depth_box, self.collider_choice, self.hidden_toggle):
             self.test_choice.setCurrentIndex(max(0, self.test_choice.findData(settings.test)))
             self._test_tooltip(self.test_choice.currentIndex())
             self.alpha_slider.setValue(alpha_to_slider(settings.alpha))
@@ -508,6 +517,7 @@ class MainWindow(QMainWindow):
                                     else settings.max_depth)
             self.collider_choice.setCurrentIndex(
                 max(0, self.collider_choice.findData(settings.collider_rule)))
+            self.hidden_toggle.setChecked(settings.hidden_causes)
 
     def _on_status(self, status):
         running = status in ("running", "stopping")
