@@ -36,6 +36,8 @@ from dataclasses import dataclass, field
 from itertools import combinations
 from typing import Callable, Sequence
 
+import networkx as nx
+
 __all__ = ["OrientationOutcome", "orient"]
 
 
@@ -167,19 +169,19 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
         elif decision == "ambiguous":
             ambiguous.add((x, z, y))
         out.triples.append((x, z, y, decision, reason))
-    for (u, z), reason in sorted(proposed.items(), key=lambda kv: (key(kv[0][0]),
-                                                                    key(kv[0][1]))):
-        if (u, z) in knowledge_heads:
-            continue
-        cycle = _directed_path(out.heads, z, u) if (z, u) not in out.heads else None
-        if cycle:
-            out.conflicts.append(
-                f"collider arrowhead {names[u]} → {names[z]} refused: it would close the "
-                f"directed cycle {' → '.join(names[v] for v in cycle + [z])}; the data's "
-                "orientations are inconsistent here")
-            continue
-        out.heads.add((u, z))
-        out.reasons[(u, z)] = reason
+    added = []
+    for (u, z), reason in proposed.items():
+        if (u, z) not in knowledge_heads:
+            out.heads.add((u, z))
+            out.reasons[(u, z)] = reason
+            added.append((u, z))
+    for (u, z), cycle in _arrows_on_cycles(out.heads, added):
+        out.heads.discard((u, z))
+        out.reasons.pop((u, z), None)
+        out.conflicts.append(
+            f"collider arrowhead {names[u]} → {names[z]} withdrawn: with the other colliders "
+            f"it closes a directed cycle through {_cycle_text(cycle, names, key)}; the data's "
+            "orientations are inconsistent here")
     for u, v in sorted(out.heads, key=lambda e: (key(e[0]), key(e[1]))):
         if (v, u) in out.heads and key(u) < key(v):
             out.conflicts.append(f"{names[u]} — {names[v]}: colliders put arrowheads at both "
@@ -191,29 +193,27 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
     return out
 
 
-def _directed_path(heads, start, goal) -> list[int] | None:
-    """A directed path ``start → … → goal`` along arrows that are not contested (both heads
-    present), as the list of its nodes, or None."""
-    children: dict[int, list[int]] = {}
-    for u, v in heads:
-        if (v, u) not in heads:
-            children.setdefault(u, []).append(v)
-    before = {start: None}
-    frontier = [start]
-    while frontier:
-        nxt = []
-        for u in frontier:
-            for v in children.get(u, ()):
-                if v not in before:
-                    before[v] = u
-                    if v == goal:
-                        path = [v]
-                        while before[path[-1]] is not None:
-                            path.append(before[path[-1]])
-                        return path[::-1]
-                    nxt.append(v)
-        frontier = nxt
-    return None
+def _arrows_on_cycles(heads, added) -> list[tuple[tuple[int, int], list[int]]]:
+    """The arrows of ``added`` that lie on a directed cycle of ``heads`` (contested pairs, with
+    heads at both ends, are not arrows), each with the variables of its cycle.
+
+    Before the arrows of one step (the colliders, or one round of the rules) were added the
+    arrows had no cycle, so withdrawing every added arrow that lies on one leaves none; all of
+    them go, whatever order they were found in, so the answer does not depend on visiting
+    order.
+    """
+    graph = nx.DiGraph((u, v) for u, v in heads if (v, u) not in heads)
+    component = {}
+    for members in nx.strongly_connected_components(graph):
+        if len(members) > 1:
+            for v in members:
+                component[v] = members
+    return [((u, v), sorted(component[u])) for u, v in added
+            if (v, u) not in heads and u in component and v in component[u]]
+
+
+def _cycle_text(members, names, key) -> str:
+    return "{" + ", ".join(names[v] for v in sorted(members, key=key)) + "}"
 
 
 def _knowledge_reason(why, a, b, names):
@@ -311,6 +311,7 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
         if not found:
             return
         progressed = False
+        added = []
         for (a, b), reason in sorted(found.items(), key=lambda kv: (key(kv[0][0]),
                                                                     key(kv[0][1]))):
             if (b, a) in found:
@@ -322,18 +323,19 @@ def _apply_meek_rules(adjacent, out, ambiguous, names, key, why_forbidden):
                 out.reasons[(a, b)] = ("contested", reason[1])
                 progressed = True
                 continue
-            cycle = _directed_path(heads, b, a)
-            if cycle:
-                # finite-sample errors can make the rules contradict acyclicity (a chordless
-                # cycle in the skeleton, say); never draw a directed cycle: leave it open
-                refused.add((a, b))
-                out.conflicts.append(
-                    f"{names[a]} — {names[b]}: {reason[0]} would orient it {names[a]} → "
-                    f"{names[b]}, closing the directed cycle "
-                    f"{' → '.join(names[v] for v in [a] + cycle)}; left undirected")
-                continue
             heads.add((a, b))
             out.reasons[(a, b)] = reason
+            added.append((a, b))
             progressed = True
+        # finite-sample errors can make the rules contradict acyclicity (a chordless cycle in
+        # the skeleton, say): never draw a directed cycle; the round's arrows on one stay open
+        for (a, b), cycle in _arrows_on_cycles(heads, added):
+            heads.discard((a, b))
+            out.reasons.pop((a, b), None)
+            refused.add((a, b))
+            out.conflicts.append(
+                f"{names[a]} — {names[b]}: {found[(a, b)][0]} would orient it {names[a]} → "
+                f"{names[b]}, closing a directed cycle through {_cycle_text(cycle, names, key)}"
+                "; left undirected")
         if not progressed:
             return
