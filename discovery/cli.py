@@ -53,7 +53,8 @@ def _build_parser() -> argparse.ArgumentParser:
         epilog="example:\n  edgewise discover example_sets/greenhouse/data.csv \\\n"
                "      --knowledge example_sets/greenhouse/knowledge.toml \\\n"
                "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png\n"
-               "  edgewise discover survey.csv --hidden-causes --out out/survey-pag.json")
+               "  edgewise discover example_sets/office_building/data.csv --hidden-causes \\\n"
+               "      --out out/office-pag.json")
     d.add_argument("data", nargs="?", help="CSV, TSV or Parquet file, one column per variable")
     d.add_argument("--test", default="fisher-z", choices=sorted(TEST_NAMES),
                    help="independence test (default: fisher-z)")

@@ -736,6 +736,19 @@ def _from_dict(doc, source) -> SearchResult:
         fail(f"malformed content ({type(err).__name__}: {err})")
 
 
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _is_count(v) -> bool:
+    """A value of ``counts``: a number, a table of numbers (``rules_fired``), or a list of
+    such tables (``levels``)."""
+    def numbers(d):
+        return isinstance(d, dict) and all(_is_number(x) for x in d.values())
+    return (_is_number(v) or numbers(v)
+            or (isinstance(v, list) and all(numbers(x) for x in v)))
+
+
 def _checked_extras(doc: dict, known: set, fail) -> dict:
     """The optional fields of a result document, each checked for its shape."""
     def listed(key, check, what):
@@ -763,9 +776,8 @@ def _checked_extras(doc: dict, known: set, fail) -> dict:
                                                     "of known variables"),
             "conflicts": listed("conflicts", lambda v: isinstance(v, str), "texts"),
             "notes": listed("notes", lambda v: isinstance(v, str), "texts"),
-            "counts": table("counts"),
-            "timings": table("timings", lambda v: isinstance(v, (int, float))
-                             and not isinstance(v, bool)),
+            "counts": table("counts", _is_count),
+            "timings": table("timings", _is_number),
             "data": table("data"), "software": table("software", lambda v: isinstance(v, str)),
             "seed": seed}
 

@@ -86,3 +86,13 @@ def test_forty_variables_and_the_readme_scores():
     truth = read_diagram(folder / "truth.csv")
     # the README's figures: SHD 13 without knowledge, 4 with it
     assert compare(plain, truth).shd == 13 and compare(known, truth).shd == 4
+
+
+def test_the_office_hidden_cause_shows_as_bidirected_with_hidden_causes_allowed():
+    # the invented truth has staff_present (left out of the data) driving coffee_sales and
+    # printer_pages; FCI marks exactly that pair bidirected (Spirtes, Meek & Richardson 1999)
+    folder = ROOT / "example_sets" / "office_building"
+    r = discover(read_table(folder / "data.csv"), hidden_causes=True)
+    e = r.edge("coffee_sales", "printer_pages")
+    assert e is not None and e.kind == "bidirected"
+    assert [x for x in r.edges if x.kind == "bidirected"] == [e]
