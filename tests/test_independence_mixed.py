@@ -247,3 +247,16 @@ def test_all_categorical_search_equals_g_squared_on_random_tables():
             data[f"c{j}"] = np.array([f"l{v}" for v in draw], dtype=object)
         f = pd.DataFrame(data)
         assert _marks(discover(f, test="mixed")) == _marks(discover(f, test="g-squared"))
+
+
+def test_auto_reports_g_squared_tests_too_thin_to_run():
+    # The G² rule (common practice, no source): the automatic test passes on G²'s reasons.
+    rng = np.random.default_rng(12)
+    f = pd.DataFrame({c: rng.choice(list("pqrs"), 60) for c in "abcd"})
+    f["w"] = rng.normal(size=60)
+    test = AutoTest(f)
+    reason = test.untestable_reason("a", "b", ["c", "d"])
+    assert reason.startswith("too few rows to test given {c, d}")
+    assert test.untestable_reason(0, 1, (2, 3)) == reason
+    assert np.isnan(test.test("a", "b", ["c", "d"]).pvalue)
+    assert test.untestable_reason("a", "w") is None
