@@ -115,6 +115,7 @@ def main(argv=None):
         t = time.perf_counter()
         rejected, untestable = rate(name, options, scenario, n, reps)
         ran = reps - untestable
+        what = what.replace("|", "\\|")
         print(f"| `{name}` | {what} | {n:,} | {reps} | {rejected} | "
               f"{rejected / max(ran, 1):.3f} | {untestable} |", flush=True)
         print(f"  ({time.perf_counter() - t:.0f} s)", file=sys.stderr)
