@@ -284,7 +284,8 @@ def format_discrete_section(figures: dict, machine: str, quick: bool) -> str:
 
 
 def write_section(path: Path, section: str) -> None:
-    """Replace the '## Independence tests' section of ``path`` (or append it)."""
+    """Replace the section of ``path`` headed by ``section``'s first line (or append it)."""
+    from discovery.bench import replace_section
     replace_section(path, section)
 
 
