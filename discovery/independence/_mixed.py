@@ -27,9 +27,9 @@ minimum-rows rule). A regression with main effects only does not hold S fixed: w
 variables of S act on x and y together (any interaction on the log-odds scale, as random
 tables of categories have), y still predicts x given the additive fit of S, and independence
 is rejected for a pair that the set separates — this added a spurious edge, and through the
-wrong separating set a contested pair, on a random categorical table. Multinomial fits with
-many indicator columns on few rows are also anti-conservative (0.09 at α = 0.05 on
-independent categories, n = 300).
+wrong separating set a contested pair, on a random categorical table. Stratified G² holds S
+fixed whatever its interactions, and its minimum-rows rule keeps the edge of a test too thin
+to run.
 
 Symmetry
 --------
