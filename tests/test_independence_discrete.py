@@ -3,15 +3,21 @@
 References named beside each check.
 """
 
+import sys
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
 from scipy.stats import chi2, chi2_contingency
 
 from discovery import discover
 from discovery.exceptions import DataValidationError, SettingsError
 from discovery.independence import GSquared, make_test
 from discovery.independence._g_squared import g_squared_table
+
+sys.path.insert(0, str(Path(__file__).parent))  # tests/alarm_model.py
 
 
 def _table_frame(table):
@@ -88,18 +94,62 @@ def test_common_effect_and_common_cause_rules():
     assert test.test("e", "f", ["d"]).pvalue > 0.01
 
 
-def test_minimum_rows_rule_marks_and_counts():
-    # Common practice, no source: fewer than 5 rows per degree of freedom -> not run, p = 1.
+def test_minimum_rows_rule_on_data_dof_keeps_the_edge():
+    # Common practice, no source: fewer than 5 rows per degree of freedom -> not run. The
+    # degrees of freedom are counted from the data per stratum (Spirtes, Glymour & Scheines
+    # 2000 §5.4.2); a test that is not run returns NaN, read by the search as "not
+    # independent", so it cannot remove an edge.
     rng = np.random.default_rng(1)
     frame = pd.DataFrame({c: rng.integers(0, 4, 60) for c in "abcde"})
     test = GSquared(frame)
-    r = test.test("a", "b", ["c"])          # dof 3*3*4 = 36 -> needs 180 rows
-    assert np.isnan(r.statistic) and r.pvalue == 1.0
-    assert test.test("a", "b").pvalue < 1.0 or not np.isnan(test.test("a", "b").statistic)
-    notes = test.describe_tests([("a", "b", ()), ("a", "b", ("c",)), ("a", "d", ("e",))])
-    assert notes and notes[0].startswith("g-squared: 2 of 3 tests")
-    off = GSquared(frame, min_rows_per_dof=0)
-    assert not np.isnan(off.test("a", "b", ["c"]).statistic)
+    r = test.test("a", "b", ["c", "d"])     # 16 strata of ~4 rows: data dof ≈ 16·(2·2) ≫ 60/5
+    assert np.isnan(r.statistic) and np.isnan(r.pvalue)
+    reason = test.untestable_reason("a", "b", ["d", "c"])
+    assert reason.startswith("too few rows to test given {c, d}: 60 rows for ")
+    assert test.untestable_reason(0, 1, (2, 3)) == reason      # by index, same answer
+    assert test.untestable_reason("a", "b") is None
+    assert test.skipped_by_rule(0, 1, (2, 3)) and not test.skipped_by_rule(0, 1, ())
+    notes = test.describe_tests([("a", "b", (), 0.3), ("a", "b", ("c", "d"), float("nan")),
+                                 ("a", "e", ("c", "d"), float("nan"))])
+    assert notes and notes[0].startswith("g-squared: 2 of 3 tests had too few rows")
+    assert "did not remove their edges" in notes[0]
+    # one level of x in every stratum: no degree of freedom left, not run either
+    z = rng.integers(0, 3, 200)
+    tied = GSquared(pd.DataFrame({"x": z % 2, "y": rng.integers(0, 2, 200), "z": z}))
+    assert np.isnan(tied.test("x", "y", ["z"]).pvalue)
+    assert "no stratum holds two levels of both x and y" in tied.untestable_reason(
+        "x", "y", ["z"])
+
+
+def test_data_dof_runs_tests_the_product_rule_skipped():
+    # Spirtes, Glymour & Scheines (2000) §5.4.2: with empty cells the degrees of freedom
+    # shrink; a 4 × 4 table given three 4-level variables has 576 product degrees of freedom
+    # (needs 2,880 rows by the product rule) but far fewer from the data when x and y are
+    # driven by the set, so 2,000 rows suffice.
+    rng = np.random.default_rng(7)
+    n = 2000
+    s = rng.integers(0, 4, (n, 3))
+    x = (s[:, 0] + (rng.random(n) < 0.1)) % 4
+    y = (s[:, 1] + (rng.random(n) < 0.1) + (x == s[:, 0])) % 4
+    frame = pd.DataFrame({"x": x, "y": y, "a": s[:, 0], "b": s[:, 1], "c": s[:, 2]})
+    new = GSquared(frame)
+    r = new.test("x", "y", ["a", "b", "c"])
+    assert np.isfinite(r.pvalue) and r.pvalue < 1e-6
+    older = GSquared(frame, thin_tests="independent")
+    # the older rule: judged on 576 product degrees of freedom, read as independent
+    assert older.test("x", "y", ["a", "b", "c"]).pvalue == 1.0
+    assert "older rule" in older.untestable_reason("x", "y", ["a", "b", "c"])
+    assert older.describe_tests([("x", "y", ("a", "b", "c"), 1.0)])[0].startswith(
+        "g-squared: 1 of 1 tests had fewer than 5 rows per degree of freedom of the full")
+
+
+def test_thin_tests_option_is_checked():
+    frame = pd.DataFrame({"a": [0, 1] * 5, "b": [1, 0] * 5})
+    with pytest.raises(SettingsError, match=r"'thin_tests' option .* 'keep-edge', "
+                                            r"'independent'"):
+        make_test("g-squared", frame, thin_tests="drop")
+    with pytest.raises(KeyError, match="'q' is not among"):
+        GSquared(frame).untestable_reason("a", "q")
 
 
 def test_more_strata_than_rows_is_one_clear_error():
@@ -172,3 +222,165 @@ def test_search_on_discrete_collider():
     result = discover(frame, test="g-squared")
     arrows = sorted(e.arrow() for e in result.edges)
     assert arrows == ["a → c", "b → c", "c → d"]
+
+
+# -- the batch computation against references ---------------------------------------------------
+
+def _reference_g2(codes, levels, x, y, s):
+    """The former one-test-at-a-time G² (np.unique over strata, one table per test), kept as
+    a reference for the batch computation: statistic and data degrees of freedom."""
+    rx, ry = int(levels[x]), int(levels[y])
+    cell = codes[:, x] * ry + codes[:, y]
+    if s:
+        stratum = np.ravel_multi_index(codes[:, list(s)].T, tuple(int(levels[v]) for v in s))
+        present, stratum = np.unique(stratum, return_inverse=True)
+        cell = stratum.reshape(-1) * (rx * ry) + cell
+        shape = (len(present), rx, ry)
+    else:
+        shape = (1, rx, ry)
+    counts = np.bincount(cell, minlength=shape[0] * rx * ry).reshape(shape)
+    return g_squared_table(counts)
+
+
+def _random_table(seed, n=1500, columns=7):
+    rng = np.random.default_rng(seed)
+    levels = rng.integers(2, 5, columns)
+    data = np.zeros((n, columns), dtype=int)
+    for j in range(columns):
+        data[:, j] = rng.integers(0, levels[j], n)
+        if j >= 2:  # some dependence, so that p-values span the whole range
+            data[:, j] = np.where(rng.random(n) < 0.3, data[:, j - 1] % levels[j],
+                                  data[:, j])
+    return pd.DataFrame(data, columns=[f"v{j}" for j in range(columns)])
+
+
+def test_batch_equals_the_former_per_test_computation():
+    # The batch (mixed-radix cells, one bincount per chunk) must give the same p-values as
+    # the former per-test computation to 1e-12 wherever both run.
+    from itertools import combinations
+    frame = _random_table(21)
+    test = GSquared(frame, min_rows_per_dof=0)
+    codes, levels = test._codes, test.levels
+    for k in range(4):
+        triples = [(x, y, s) for x, y in combinations(range(7), 2)
+                   for s in combinations([v for v in range(7) if v not in (x, y)], k)]
+        p = test.pvalues(triples, canonical=True)
+        for (x, y, s), pv in zip(triples, p):
+            g2, dof = _reference_g2(codes, levels, x, y, s)
+            assert dof > 0 and abs(pv - chi2.sf(g2, dof)) <= 1e-12
+
+
+def test_batch_equals_scipy_per_stratum_summed():
+    # Source: scipy.stats.chi2_contingency(lambda_="log-likelihood", correction=False) on each
+    # stratum's table (empty rows and columns dropped), statistics and degrees of freedom
+    # summed over strata (Agresti 2002 §6.3).
+    frame = _random_table(22, n=800, columns=5)
+    test = GSquared(frame, min_rows_per_dof=0)
+    triples = [(0, 1, (2,)), (0, 3, (1, 4)), (2, 4, (0, 1, 3)), (1, 2, ())]
+    p = test.pvalues(triples)
+    for (x, y, s), pv in zip(triples, p):
+        names = frame.columns
+        total, dof = 0.0, 0
+        groups = frame.groupby([names[v] for v in s]) if s else [((), frame)]
+        for _, part in groups:
+            table = pd.crosstab(part[names[x]], part[names[y]]).to_numpy()
+            if min(table.shape) < 2:
+                continue
+            stat, _, d, _ = chi2_contingency(table, correction=False,
+                                             lambda_="log-likelihood")
+            total += stat
+            dof += d
+        assert abs(pv - chi2.sf(total, dof)) <= 1e-12
+
+
+def test_missing_values_in_the_batch_equal_scipy_on_complete_rows():
+    # test-wise deletion in the batch: each test uses the rows complete on its own columns;
+    # reference: scipy per stratum on those rows.
+    frame = _random_table(23, n=600, columns=4).astype(float)
+    frame.iloc[:50, 2] = np.nan
+    frame.iloc[40:90, 3] = np.nan
+    test = GSquared(frame, missing="test-wise", min_rows_per_dof=0)
+    p = test.pvalues([(0, 1, (2,)), (0, 1, (3,)), (0, 1, ())])
+    for pv, given in zip(p, ["v2", "v3", None]):
+        part = frame.dropna(subset=["v0", "v1"] + ([given] if given else []))
+        total, dof = 0.0, 0
+        for _, g in (part.groupby(given) if given else [((), part)]):
+            stat, _, d, _ = chi2_contingency(pd.crosstab(g.v0, g.v1).to_numpy(),
+                                             correction=False, lambda_="log-likelihood")
+            total, dof = total + stat, dof + d
+        assert abs(pv - chi2.sf(total, dof)) <= 1e-12
+
+
+def test_sparse_fallback_equals_the_dense_path():
+    # A conditioning set with more possible cells than the dense path takes is counted over
+    # the strata that occur; same p-value as the reference computation.
+    rng = np.random.default_rng(24)
+    n = 300
+    frame = pd.DataFrame({f"c{j}": rng.integers(0, 10, n) for j in range(6)})
+    frame["x"] = rng.integers(0, 2, n)
+    frame["y"] = (frame.x + (rng.random(n) < 0.3)) % 2
+    test = GSquared(frame, min_rows_per_dof=0)
+    x, y = test.variables.index("x"), test.variables.index("y")
+    s = (0, 1, 2, 3)                    # 10,000 strata × 4 cells: the sparse path
+    assert test.levels[list(s)].prod() * 4 > max(4 * n, 4096)
+    g2, dof = _reference_g2(test._codes, test.levels, min(x, y), max(x, y), s)
+    p = test.pvalues([(x, y, s)])[0]
+    assert (np.isnan(p) and dof == 0) or abs(p - chi2.sf(g2, dof)) <= 1e-12
+
+
+# -- ALARM ---------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_alarm_skeleton_from_its_tables(seed):
+    # ALARM (Beinlich, Suermondt, Chavez & Cooper 1989), 37 variables and 46 edges, sampled
+    # from its published tables (tests/data/alarm_network.json), n = 10,000, α = 0.01: the
+    # skeleton must be found with F1 ≥ 0.97. With the older rule (product degrees of freedom,
+    # skipped tests read as independent) the first seed loses 8 edges (F1 0.905).
+    from alarm_model import alarm_network, sample_alarm
+    from discovery.metrics import skeleton_scores
+    dag, _ = alarm_network()
+    frame = sample_alarm(10_000, seed)
+    result = discover(frame, test="g-squared", alpha=0.01)
+    assert skeleton_scores(result.to_networkx(), dag).f1 >= 0.97
+    if seed == 1:
+        older = discover(frame, test="g-squared", alpha=0.01,
+                         test_options={"thin_tests": "independent"})
+        assert skeleton_scores(older.to_networkx(), dag).f1 < 0.93
+        assert any("older rule" in note for note in older.notes)
+
+
+# -- a test too thin to run never removes an edge ------------------------------------------------
+
+@st.composite
+def _thin_tables(draw):
+    n = draw(st.integers(15, 120))
+    columns = draw(st.integers(3, 5))
+    seed = draw(st.integers(0, 2 ** 31))
+    rng = np.random.default_rng(seed)
+    levels = rng.integers(2, 5, columns)
+    data = np.column_stack([rng.integers(0, k, n) for k in levels])
+    for j in range(1, columns):       # some dependence, so that edges survive level 0
+        copy = rng.random(n) < draw(st.floats(0.0, 0.9))
+        data[copy, j] = data[copy, j - 1] % levels[j]
+    for j in range(columns):          # every column keeps at least two levels
+        data[:2, j] = [0, 1]
+    return pd.DataFrame(data, columns=[f"q{j}" for j in range(columns)])
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(frame=_thin_tables(), alpha=st.sampled_from([0.01, 0.05, 0.3]),
+       rule=st.sampled_from([1.0, 5.0, 10.0]))
+def test_no_thin_test_removes_an_edge(frame, alpha, rule):
+    # Property (the rule of the issue): a test marked too thin has p-value NaN, and no removed
+    # pair was separated by such a test.
+    result = discover(frame, test="g-squared", alpha=alpha,
+                      test_options={"min_rows_per_dof": rule})
+    test = GSquared(frame, min_rows_per_dof=rule)
+    for x, y, given, p in result.tests:
+        if test.untestable_reason(x, y, given) is not None:
+            assert np.isnan(p)
+    for removal in result.removed:
+        assert removal.by == "test"
+        assert test.untestable_reason(removal.a, removal.b, removal.separating_set) is None
+        assert removal.pvalue > alpha

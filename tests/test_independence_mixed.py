@@ -3,6 +3,8 @@
 References named beside each check.
 """
 
+import warnings
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -28,53 +30,79 @@ def _z(v):
     return (v - v.mean()) / v.std()
 
 
-def test_continuous_target_matches_statsmodels_ols_lr():
-    # Source: statsmodels RegressionResults.compare_lr_test (LR of nested OLS fits).
-    f = _frame()
-    dummies = pd.get_dummies(f.group, drop_first=True).astype(float).to_numpy()
-    base = sm.add_constant(_z(f.age.to_numpy())[:, None])
-    full = np.hstack([base, dummies])
-    lr, p, df = sm.OLS(f.score, full).fit().compare_lr_test(sm.OLS(f.score, base).fit())
-    test = MixedLR(f)
-    ours = test._direction(2, 1, np.ones(len(f), bool),
-                           np.hstack([np.ones((len(f), 1)), _z(f.age.to_numpy())[:, None]]))
-    assert ours[0] == pytest.approx(lr, rel=1e-8)
-    assert ours[1] == pytest.approx(p, rel=1e-6)
-    assert df == 2
+def _statsmodels_direction(f, target, other, given):
+    """LR and p-value of ``other`` as a predictor of ``target`` given ``given``, from
+    statsmodels' own fits: OLS (continuous/ordinal target), Logit (binary), MNLogit
+    (categorical); numbers standardised, categories as indicators of all levels but the first."""
+    def cols(name):
+        v = f[name]
+        if not pd.api.types.is_numeric_dtype(v) or v.nunique() == 2:
+            codes = pd.factorize(v, sort=True)[0]
+            return np.eye(codes.max() + 1)[codes][:, 1:]
+        return _z(v.to_numpy(dtype=float))[:, None]
+
+    base = np.hstack([np.ones((len(f), 1))] + [cols(g) for g in given])
+    full = np.hstack([base, cols(other)])
+    t = f[target]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        if not pd.api.types.is_numeric_dtype(t) or t.nunique() == 2:
+            codes = pd.factorize(t, sort=True)[0]
+            classes = codes.max() + 1
+            model = sm.Logit if classes == 2 else sm.MNLogit
+            ll1 = model(codes, full).fit(disp=0, method="newton", maxiter=100).llf
+            ll0 = model(codes, base).fit(disp=0, method="newton", maxiter=100).llf
+            lr = 2 * (ll1 - ll0)
+            df = (full.shape[1] - base.shape[1]) * (classes - 1)
+        else:
+            lr, _, df = sm.OLS(t.to_numpy(float), full).fit().compare_lr_test(
+                sm.OLS(t.to_numpy(float), base).fit())
+    return lr, chi2.sf(lr, df)
 
 
-def test_binary_and_categorical_targets_match_statsmodels_llf():
-    # Source: statsmodels Logit / MNLogit maximised log-likelihoods; LR = 2 (llf1 - llf0),
-    # χ² with (classes - 1) × added columns degrees of freedom (Wilks 1938).
+CHECK_SET = [("score", "group", ("age",)), ("treated", "score", ()),
+             ("group", "treated", ("age",)), ("age", "treated", ("score", "group")),
+             ("group", "score", ("treated",)), ("age", "score", ("group", "treated"))]
+
+
+@pytest.mark.parametrize("x, y, given", CHECK_SET)
+def test_p_values_equal_statsmodels(x, y, given):
+    # Source: statsmodels OLS.compare_lr_test and the maximised log-likelihoods of Logit /
+    # MNLogit, LR = 2 (llf1 − llf0), χ² with the added columns × (classes − 1) degrees of
+    # freedom (Wilks 1938); the test reports the direction with the larger p-value.
     f = _frame()
-    x = _z(f.score.to_numpy())[:, None]
-    ones = np.ones((len(f), 1))
-    test = MixedLR(f)
-    rows = np.ones(len(f), bool)
-    ll1 = sm.Logit(f.treated, np.hstack([ones, x])).fit(disp=0).llf
-    ll0 = sm.Logit(f.treated, ones).fit(disp=0).llf
-    stat, p = test._direction(3, 2, rows, ones)
-    assert stat == pytest.approx(2 * (ll1 - ll0), rel=1e-6)
-    assert p == pytest.approx(chi2.sf(2 * (ll1 - ll0), 1), rel=1e-5)
-    codes = pd.factorize(f.group, sort=True)[0]
-    ll1 = sm.MNLogit(codes, np.hstack([ones, x])).fit(disp=0).llf
-    ll0 = sm.MNLogit(codes, ones).fit(disp=0).llf
-    stat, p = test._direction(1, 2, rows, ones)
-    assert stat == pytest.approx(2 * (ll1 - ll0), rel=1e-6)
-    assert p == pytest.approx(chi2.sf(2 * (ll1 - ll0), 2), rel=1e-5)
+    a = _statsmodels_direction(f, x, y, given)
+    b = _statsmodels_direction(f, y, x, given)
+    expected = max(a[1], b[1])
+    result = MixedLR(f).test(x, y, given)
+    assert abs(result.pvalue - expected) <= 1e-6
+    assert result.statistic == pytest.approx(a[0] if a[1] >= b[1] else b[0], rel=1e-6)
 
 
 def test_symmetric_and_the_larger_p_value():
     # Our documented rule (after Tsagris et al. 2018): both regressions, the larger p-value.
     f = _frame(seed=3)
     test = MixedLR(f)
-    rows = np.ones(len(f), bool)
-    base = np.hstack([np.ones((len(f), 1)), _z(f.age.to_numpy())[:, None]])
-    a = test._direction(3, 1, rows, base)
-    b = test._direction(1, 3, rows, base)
     r1 = test.test("group", "treated", ["age"])
     r2 = test.test("treated", "group", ["age"])
-    assert r1.pvalue == r2.pvalue == pytest.approx(max(a[1], b[1]))
+    a = _statsmodels_direction(f, "group", "treated", ["age"])
+    b = _statsmodels_direction(f, "treated", "group", ["age"])
+    assert r1.pvalue == r2.pvalue
+    assert abs(r1.pvalue - max(a[1], b[1])) <= 1e-6
+
+
+def test_missing_values_test_wise_equal_statsmodels_on_complete_rows():
+    # test-wise deletion: each test uses the rows complete on its own columns (statsmodels
+    # fitted on those rows).
+    f = _frame(seed=4)
+    f.loc[:40, "age"] = np.nan
+    f.loc[30:80, "group"] = None
+    test = MixedLR(f, missing="test-wise")
+    for x, y, given in [("score", "treated", ("age",)), ("treated", "group", ("score",))]:
+        part = f.dropna(subset=[x, y, *given]).reset_index(drop=True)
+        a = _statsmodels_direction(part, x, y, given)
+        b = _statsmodels_direction(part, y, x, given)
+        assert abs(test.test(x, y, given).pvalue - max(a[1], b[1])) <= 1e-6
 
 
 def test_rules_of_the_trade():
@@ -163,3 +191,72 @@ def test_search_with_mixed_and_auto():
     for name in ("mixed", "auto"):
         result = discover(f, test=name)
         assert sorted(e.arrow() for e in result.edges) == ["dose → effect", "sex → effect"]
+
+
+def _interacting_categories(n, seed):
+    """x and y both driven by an interaction of a and b (x ⟂ y | {a, b} holds)."""
+    rng = np.random.default_rng(seed)
+    a = rng.choice(["p", "q"], n)
+    b = rng.choice(["u", "v", "w"], n)
+    inter = (a == "p") == (b == "u")
+    x = np.where(rng.random(n) < 0.15, rng.choice(["r", "s"], n), np.where(inter, "r", "s"))
+    y = np.where(rng.random(n) < 0.2, rng.choice(["e", "f", "g"], n),
+                 np.where(inter, "e", np.where(b == "w", "f", "g")))
+    return pd.DataFrame(dict(a=a, b=b, x=x, y=y))
+
+
+def _marks(result):
+    return sorted((e.source, e.target, e.kind) for e in result.edges)
+
+
+def test_all_categorical_tests_are_g_squared():
+    # Agresti (2002) §6.3: conditional independence of categories given a set is the
+    # likelihood-ratio test of the model saturated in the set (stratified G²). Regressions
+    # with main effects only (the former behaviour) do not hold {a, b} fixed when a and b
+    # interact: they rejected x ⟂ y | {a, b} with p ≈ 1e-170 on this table and added the
+    # spurious edge x → y.
+    f = _interacting_categories(2000, 0)
+    mixed, g2 = MixedLR(f), make_test("g-squared", f)
+    for x, y, given in [("x", "y", ["a", "b"]), ("x", "y", []), ("a", "y", ["b"])]:
+        assert mixed.test(x, y, given).pvalue == g2.test(x, y, given).pvalue
+    assert mixed.test("x", "y", ["a", "b"]).pvalue > 0.05
+    assert _marks(discover(f, test="mixed")) == _marks(discover(f, test="g-squared"))
+    assert "x → y" not in [e.arrow() for e in discover(f, test="mixed").edges]
+
+
+def test_all_categorical_search_equals_g_squared_on_random_tables():
+    # Random categorical tables (6 variables, each with two earlier parents and a random
+    # table per parent configuration, so parents interact): the mixed test's search and the
+    # G² search must agree edge for edge. With main-effect regressions they did not on any of
+    # these seeds (extra edges, and contested pairs on seeds 1 and 3).
+    for seed in range(4):
+        rng = np.random.default_rng(seed)
+        n, data = 1500, {}
+        for j in range(6):
+            k = int(rng.integers(2, 4))
+            names = list(data)
+            parents = list(rng.choice(names, min(2, len(names)), replace=False)) if names else []
+            config = np.zeros(n, dtype=int)
+            for c in parents:
+                codes = pd.factorize(data[c], sort=True)[0]
+                config = config * (codes.max() + 1) + codes
+            logits = rng.normal(0, 2.0, (config.max() + 1, k))[config]
+            prob = np.exp(logits)
+            prob /= prob.sum(axis=1, keepdims=True)
+            draw = (rng.random((n, 1)) > prob.cumsum(axis=1)).sum(axis=1).clip(0, k - 1)
+            data[f"c{j}"] = np.array([f"l{v}" for v in draw], dtype=object)
+        f = pd.DataFrame(data)
+        assert _marks(discover(f, test="mixed")) == _marks(discover(f, test="g-squared"))
+
+
+def test_auto_reports_g_squared_tests_too_thin_to_run():
+    # The G² rule (common practice, no source): the automatic test passes on G²'s reasons.
+    rng = np.random.default_rng(12)
+    f = pd.DataFrame({c: rng.choice(list("pqrs"), 60) for c in "abcd"})
+    f["w"] = rng.normal(size=60)
+    test = AutoTest(f)
+    reason = test.untestable_reason("a", "b", ["c", "d"])
+    assert reason.startswith("too few rows to test given {c, d}")
+    assert test.untestable_reason(0, 1, (2, 3)) == reason
+    assert np.isnan(test.test("a", "b", ["c", "d"]).pvalue)
+    assert test.untestable_reason("a", "w") is None

@@ -166,6 +166,19 @@ class AutoTest(IndependenceTest):
         detail = ", ".join(f"{v} {k}" for v, k in zip(names, kinds))
         return "mixed", f"mixed kinds ({detail})"
 
+    def untestable_reason(self, x, y, given=()) -> str | None:
+        """Why the test of ``x ⟂ y | given`` is not run (G²'s tests too thin to run), or
+        None. ``x``, ``y`` and ``given`` by name or by position (both accepted)."""
+        index = {v: i for i, v in enumerate(self.variables)}
+        cols = [int(v) if isinstance(v, (int, np.integer)) else index[v]
+                for v in (x, y, *given)]
+        name = self.choose(cols[0], cols[1], tuple(cols[2:]))[0]
+        test, local = self._tests[name]
+        reason = getattr(test, "untestable_reason", None)
+        if reason is None:
+            return None
+        return reason(local[cols[0]], local[cols[1]], [local[c] for c in cols[2:]])
+
     # -- tests -------------------------------------------------------------------------------
     def _batch(self, triples):
         m = len(triples)

@@ -44,11 +44,14 @@ TEST_OPTIONS = {
     "fisher-z": {},
     "kci": dict(_KERNEL_OPTIONS),
     "g-squared": {"min_rows_per_dof": "float, default 5: fewer rows per degree of freedom "
-                                      "and the test is not run (0: never skip)"},
+                                      "(counted from the data) and the test is not run",
+                  "thin_tests": "'keep-edge' (default): a test too thin to run keeps its edge; "
+                                "'independent': the older rule, read as p = 1 (removes edges)"},
     "mixed": {},
     "auto": {"normality_alpha": "float, default 0.01: level of the normality check",
              **_KERNEL_OPTIONS,
-             "min_rows_per_dof": "float, default 5: G²'s minimum-rows rule"},
+             "min_rows_per_dof": "float, default 5: G²'s minimum-rows rule",
+             "thin_tests": "'keep-edge' (default) or 'independent': G²'s tests too thin to run"},
 }
 
 
