@@ -65,6 +65,11 @@ HIDDEN_CAUSES_ASSUMPTIONS = (
 )
 
 
+def _index_block(i) -> np.ndarray:
+    block = np.asarray(i)
+    return block if block.dtype.kind in "iu" and block.size else block.astype(np.intp)
+
+
 class TestLog(Sequence):
     """Every test run by a search, stored compactly; reads as ``(x, y, given, pvalue)`` tuples.
 
@@ -77,8 +82,8 @@ class TestLog(Sequence):
 
     def __init__(self, names, blocks):
         self._names = tuple(names)
-        self._blocks = tuple((np.asarray(i, dtype=np.intp), np.asarray(p, dtype=float))
-                             for i, p in blocks)
+        # integer index blocks keep their width (the search stores 32-bit ones)
+        self._blocks = tuple((_index_block(i), np.asarray(p, dtype=float)) for i, p in blocks)
         for i, p in self._blocks:
             i.setflags(write=False)
             p.setflags(write=False)

@@ -216,44 +216,65 @@ def _pvalues_of_chunk(args):
 
 
 class _SizeTable:
-    """p-values of one test and one set size, in a dict keyed by each row packed into an int.
+    """p-values of one test and one set size, as a few sorted runs of packed keys.
 
-    Packing ``[x, y, s1..sk]`` into one integer (``bits`` per variable) keeps the per-test cost
-    of a lookup or an insert to one hash of a small int, whatever the table's size.
+    A row ``[x, y, s1..sk]`` is packed into one 64-bit integer when it fits (``bits`` per
+    variable), else into a fixed-width byte string of 16- or 32-bit indices. Keys and
+    p-values live in numpy arrays, sorted run by run (a log-structured merge: a new batch is
+    a run of its own, and runs of similar size are merged), so a lookup is a binary search per
+    run and a stored test costs its key and one float: about 16 bytes, against about 200 in
+    a dictionary of Python objects, which is what lets a search of tens of millions of tests
+    fit in memory.
     """
 
     def __init__(self, n_vars: int, width: int):
         self.bits = max(1, int(n_vars).bit_length())
         self.packable = self.bits * width <= 62
-        self.table: dict = {}
+        self.width = width
+        self.index_dtype = np.uint16 if n_vars < 2**16 else np.uint32
+        self.runs: list[tuple[np.ndarray, np.ndarray]] = []
+        self.size = 0
 
-    def keys_of(self, idx: np.ndarray) -> list:
-        if not self.packable:
-            return [r.tobytes() for r in idx]
-        key = np.zeros(len(idx), dtype=np.int64)
-        for k in range(idx.shape[1]):
-            key |= idx[:, k].astype(np.int64) << (self.bits * k)
-        return key.tolist()
+    def keys_of(self, idx: np.ndarray) -> np.ndarray:
+        if self.packable:
+            key = np.zeros(len(idx), dtype=np.int64)
+            for k in range(idx.shape[1]):
+                key |= idx[:, k].astype(np.int64) << (self.bits * k)
+            return key
+        packed = np.ascontiguousarray(idx, dtype=self.index_dtype)
+        return packed.view(np.dtype((np.void, packed.itemsize * self.width))).ravel()
 
-    # NaN p-values are stored as this marker so that a lookup can tell "known to be NaN"
-    # from "unknown" (None) in one pass.
-    _NAN = -1.0
-
-    def lookup(self, keys: list) -> tuple[np.ndarray, np.ndarray]:
+    def lookup(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(p-values, mask of known keys); unknown keys get NaN."""
-        if not self.table:
-            return np.full(len(keys), np.nan), np.zeros(len(keys), dtype=bool)
-        # map() runs in C; numpy turns the None of a missing key into NaN
-        values = np.array(list(map(self.table.get, keys)), dtype=float)
-        known = ~np.isnan(values)
-        values[values == self._NAN] = np.nan
+        values = np.full(len(keys), np.nan)
+        known = np.zeros(len(keys), dtype=bool)
+        for run_keys, run_values in self.runs:
+            at = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
+            hit = (run_keys[at] == keys) & ~known
+            values[hit] = run_values[at[hit]]
+            known |= hit
         return values, known
 
-    def store(self, keys: list, values: np.ndarray) -> None:
-        self.table.update(zip(keys, np.where(np.isnan(values), self._NAN, values).tolist()))
+    def store(self, keys: np.ndarray, values: np.ndarray) -> None:
+        self.runs.append(_sorted_run(keys, np.asarray(values, dtype=float)))
+        while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
+            (k1, v1), (k2, v2) = self.runs[-2], self.runs.pop()
+            self.runs[-1] = _sorted_run(np.concatenate([k1, k2]), np.concatenate([v1, v2]))
+        self.size = sum(len(k) for k, _ in self.runs)
 
     def __len__(self):
-        return len(self.table)
+        return self.size
+
+
+def _sorted_run(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Keys sorted, each once (its first value kept), with their values."""
+    order = np.argsort(keys, kind="stable")
+    keys, values = keys[order], values[order]
+    if len(keys) > 1:
+        first = np.ones(len(keys), dtype=bool)
+        first[1:] = keys[1:] != keys[:-1]
+        keys, values = keys[first], values[first]
+    return keys, values
 
 
 class PValueCache:
@@ -298,8 +319,7 @@ class PValueCache:
             fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
             values[todo] = fresh
             with self._lock:
-                table.store(keys if len(todo) == len(keys) else [keys[i] for i in todo],
-                            fresh)
+                table.store(keys if len(todo) == len(keys) else keys[todo], fresh)
         with self._lock:
             self.misses += len(todo)
             self.hits += len(idx) - len(todo)

@@ -423,7 +423,8 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     # Indices follow name order, so the log's order (level by level, pair by pair) is already
     # independent of column order and needs no sorting.
     tests = TestLog.from_blocks(names, skeleton.log)
-    pair_key = np.concatenate([b[0][:, 0] * len(names) + b[0][:, 1] for b in skeleton.log]) \
+    pair_key = np.concatenate([b[0][:, 0].astype(np.int64) * len(names) + b[0][:, 1]
+                               for b in skeleton.log]) \
         if skeleton.log else np.empty(0, dtype=np.intp)
     log_p = np.concatenate([b[1] for b in skeleton.log]) if skeleton.log else np.empty(0)
     n = len(names)

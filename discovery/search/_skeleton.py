@@ -486,7 +486,8 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
 
         def settle(idx, p, owner_of_row):
             """Record the batch; return the owners that found a separating set."""
-            out.log.append((idx, p))
+            # the evidence keeps every test: 32-bit indices halve what it holds
+            out.log.append((idx.astype(np.int32) if n_vars < 2**31 else idx, p))
             hits = np.flatnonzero(p > alpha)
             if owner_of_row is None:  # one row per pair (level 0)
                 hit_owners = chosen = hits
