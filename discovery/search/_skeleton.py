@@ -435,6 +435,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     """
     locked = {(min(a, b), max(a, b)) for a, b in locked}
     forbidden = {(min(a, b), max(a, b)) for a, b in forbidden}
+    log_dtype = np.uint16 if n_vars < 2**16 else np.int32
     adj = ~np.eye(n_vars, dtype=bool)
     for a, b in forbidden:
         adj[a, b] = adj[b, a] = False
@@ -486,8 +487,9 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
 
         def settle(idx, p, owner_of_row):
             """Record the batch; return the owners that found a separating set."""
-            # the evidence keeps every test: 32-bit indices halve what it holds
-            out.log.append((idx.astype(np.int32) if n_vars < 2**31 else idx, p))
+            # the evidence keeps every test: 16-bit indices (32 for huge tables) take a
+            # quarter (a half) of what 64-bit ones would
+            out.log.append((idx.astype(log_dtype), p))
             hits = np.flatnonzero(p > alpha)
             if owner_of_row is None:  # one row per pair (level 0)
                 hit_owners = chosen = hits
