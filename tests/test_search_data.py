@@ -271,3 +271,24 @@ def test_batch_sizes_do_not_change_the_skeleton(monkeypatch):
     assert small.adjacent == usual.adjacent
     assert dict(small.sepsets.items()) == dict(usual.sepsets.items())
     assert len(small.log) > len(usual.log)  # many more, smaller batches
+
+
+def test_a_level_that_could_outgrow_the_memory_is_not_started(monkeypatch):
+    # the hardening issue: never fail half-way (or be killed) for want of memory; stop
+    # deepening with a note instead. Here the machine is made to look nearly full.
+    import warnings
+
+    from discovery import SearchLimitWarning, discover
+    from discovery.search import _skeleton
+    from discovery.simulate import random_dag, sample_linear_gaussian
+    rng = np.random.default_rng(4)
+    frame = sample_linear_gaussian(random_dag(12, expected_degree=4, rng=rng), 3000, rng=rng)
+    full = discover(frame)
+    assert full.counts["depth_reached"] >= 2
+    monkeypatch.setattr(_skeleton, "available_memory", lambda: 1)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        limited = discover(frame)
+    assert limited.counts["depth_reached"] <= 1
+    assert any("depth limited to 1 by memory" in n for n in limited.notes)
+    assert any(issubclass(w.category, SearchLimitWarning) for w in caught)

@@ -15,6 +15,7 @@ from __future__ import annotations
 import dataclasses
 import platform
 import time
+import warnings
 from itertools import combinations
 from typing import Callable
 
@@ -224,6 +225,10 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                   cancelled, test_obj, executor, pds_budget, notes)
             t_pds = time.perf_counter()
         hits1, misses1 = cache.hits, cache.misses  # the search's tests: those in the log
+        if skeleton.memory_limit:
+            from ..exceptions import SearchLimitWarning
+            notes.append(skeleton.memory_limit)
+            warnings.warn(skeleton.memory_limit, SearchLimitWarning, stacklevel=2)
         separating_sets_of = None
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
@@ -298,7 +303,6 @@ def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, pro
                 + ", ".join(f"{names[x]} — {names[y]}" for x, y in phase["unfinished"][:10])
                 + (" …" if len(phase["unfinished"]) > 10 else ""))
         notes.append(text)
-        import warnings
         from ..exceptions import SearchLimitWarning
         warnings.warn(text, SearchLimitWarning, stacklevel=3)
     if depth is not None and phase["largest"] > depth:

@@ -38,6 +38,7 @@ import numpy as np
 from scipy.special import comb
 
 from ..exceptions import SearchCancelled
+from ..resources import available_memory
 
 __all__ = ["SeparatingSets", "SkeletonOutcome", "adjacency_search"]
 
@@ -134,6 +135,8 @@ class SkeletonOutcome:
     unseparated_forbidden: list[tuple[int, int]] = field(default_factory=list)
     depth_reached: int = 0
     levels: list[dict] = field(default_factory=list)
+    # why the search stopped deepening before its depth limit, if it did ("" otherwise)
+    memory_limit: str = ""
 
 
 _WEAK_BITS = 16  # resolution of the association ranking: 65,536 steps
@@ -299,6 +302,7 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
 # have stopped earlier.
 _ONE_BATCH = 4096
 _MAX_BATCH = 1_000_000  # at most about this many rows in one round
+_MEMORY_SHARE = 0.6  # a level whose evidence could need more of the free memory is not run
 _SATURATE = 1 << 62  # set counts are capped here: no round ever reaches that far
 
 
@@ -460,12 +464,21 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             room = np.maximum(degree[pairs[:, 0]], degree[pairs[:, 1]]) - \
                 frozen[pairs[:, 0], pairs[:, 1]]
             pairs = pairs[room >= level]  # exactly the pairs with a candidate set
-            # the number of candidate sets is needed only to report progress
-            sizes = _count_sets(pairs, frozen, degree, level) if progress is not None \
-                else None
+            # the number of candidate sets bounds the level's tests (progress, memory)
+            sizes = _count_sets(pairs, frozen, degree, level)
         if not len(pairs):
             break
-        total = int(sizes.sum()) if sizes is not None else 0
+        total = int(sizes.sum())
+        need = total * (np.dtype(log_dtype).itemsize * (level + 2) + 8)
+        if level > 1 and need > _MEMORY_SHARE * available_memory():
+            # the evidence keeps every test: a level that could outgrow the memory is not
+            # started (the search stops deepening instead of failing half-way)
+            out.memory_limit = (
+                f"depth limited to {level - 1} by memory: level {level} could run up to "
+                f"{total:,} tests, whose evidence needs up to {need / 2**30:,.1f} GiB, more "
+                f"than {_MEMORY_SHARE:.0%} of the memory available; pairs still adjacent may "
+                "be separable by larger sets (set a depth, or search fewer variables)")
+            break
         level_started = time.perf_counter()
         done = 0
         removed_now = []
