@@ -29,7 +29,7 @@ __version__ = "0.1.0"
 from .data import Dataset, check_for_search, column_kind, prepare_frame, read_table
 from .exceptions import (DataValidationError, DegenerateDataWarning, DiscoveryError,
                          KnowledgeError, ResultFormatError, SearchCancelled,
-                         SearchLimitWarning, SettingsError)
+                         SearchLimitWarning, SettingsError, WorkerError, ClusterError)
 from .independence import DSeparationOracle, FisherZ, PValueCache
 from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
 from .knowledge import Knowledge, read_knowledge, write_knowledge
@@ -44,4 +44,5 @@ __all__ = [
     "DSeparationOracle", "FisherZ", "PValueCache",
     "DiscoveryError", "DataValidationError", "KnowledgeError", "SettingsError",
     "ResultFormatError", "SearchCancelled", "DegenerateDataWarning", "SearchLimitWarning",
+    "WorkerError", "ClusterError",
 ]

@@ -11,6 +11,8 @@ __all__ = [
     "SettingsError",
     "ResultFormatError",
     "SearchCancelled",
+    "WorkerError",
+    "ClusterError",
     "DegenerateDataWarning",
     "SearchLimitWarning",
 ]
@@ -38,6 +40,19 @@ class ResultFormatError(DiscoveryError, ValueError):
 
 class SearchCancelled(DiscoveryError):
     """The search was stopped by its cancel flag before it finished; no result exists."""
+
+
+class WorkerError(DiscoveryError):
+    """Work spread over processes or a cluster failed there (an exception, a lost worker).
+
+    ``remote_traceback`` (when set) holds the worker's traceback, for a bug report.
+    """
+
+    remote_traceback: str = ""
+
+
+class ClusterError(DiscoveryError):
+    """A cluster cannot be used: unreachable, no workers, or Edgewise missing on them."""
 
 
 class DegenerateDataWarning(UserWarning):
