@@ -559,8 +559,15 @@ class ProcessExecutor(_Spreading):
 
 # ------------------------------------------------------------------------------ cluster
 
+class _Box:
+    """Holds a shared object, so that Dask scatters it whole (a dict or list it would split)."""
+
+    def __init__(self, value):
+        self.value = value
+
+
 def _dask_piece(fn, shared, part, mode):
-    return _run_piece(fn, shared, part, mode)
+    return _run_piece(fn, None if shared is None else shared.value, part, mode)
 
 
 def _worker_check() -> str:
@@ -645,7 +652,7 @@ class DaskExecutor(_Spreading):
     def _scatter(self, obj):
         entry = self._scattered.get(id(obj))
         if entry is None or entry[0] is not obj:
-            future = self._client.scatter(obj, broadcast=True, hash=False)
+            future = self._client.scatter(_Box(obj), broadcast=True, hash=False)
             entry = self._scattered[id(obj)] = (obj, future)
             while len(self._scattered) > _KEEP_SHARED:
                 old = self._scattered.pop(next(iter(self._scattered)))
@@ -715,7 +722,7 @@ class DaskExecutor(_Spreading):
 
 
 def make_executor(jobs: int | None = None, cluster: str | None = None, *,
-                  timeout: float = CLUSTER_TIMEOUT) -> Executor:
+                  timeout: float | None = None) -> Executor:
     """Choose where work runs.
 
     Parameters
@@ -725,8 +732,8 @@ def make_executor(jobs: int | None = None, cluster: str | None = None, *,
         CPU core. Ignored when ``cluster`` is given.
     cluster : str, optional
         A Dask scheduler's address (``"tcp://host:port"``): run on that cluster.
-    timeout : float
-        Seconds to wait for the cluster.
+    timeout : float, optional
+        Seconds to wait for the cluster (default :data:`CLUSTER_TIMEOUT`).
 
     Raises
     ------
@@ -737,7 +744,7 @@ def make_executor(jobs: int | None = None, cluster: str | None = None, *,
     """
     from .exceptions import SettingsError
     if cluster:
-        return DaskExecutor(cluster, timeout=timeout)
+        return DaskExecutor(cluster, timeout=CLUSTER_TIMEOUT if timeout is None else timeout)
     if jobs is not None and (isinstance(jobs, bool) or not isinstance(jobs, (int, np.integer))):
         raise SettingsError(f"The 'jobs' parameter must be an integer. Got {jobs!r} instead.")
     if not jobs or jobs == 1:
