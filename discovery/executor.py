@@ -25,6 +25,10 @@ Why parallel work used to be slower, and what this module does about it
       few tens of milliseconds each, at least one per worker;
     * **small batches stay in-process**: when a batch's estimated cost is below
       ``min_seconds`` (default 30 ms) shipping it cannot pay, and it runs where it is;
+    * **spreading must pay**: the wall time per row spread over the workers and in-process
+      are both measured, and a kind of batch is spread only while that is faster (the other
+      way is tried again every few batches, so a change of load is noticed). On a machine
+      whose cores are busy with other work, spreading gains nothing and is dropped;
     * **BLAS is single-threaded in workers**, which already share the cores.
 
 Faults
@@ -232,8 +236,8 @@ def _fault(err: BaseException, remote_traceback: str, where: str) -> DiscoveryEr
         return err
     text = str(err).strip().splitlines()[0] if str(err).strip() else "(no message)"
     out = WorkerError(f"{where} failed: {type(err).__name__}: {text}; nothing was kept — "
-                      "this is a fault in the work itself, not in your data; run again "
-                      "without --jobs/--cluster to see it in-process, and report it")
+                      "run again without --jobs/--cluster to see it in-process, and report "
+                      "it if it is not about memory or your data")
     out.remote_traceback = remote_traceback
     return out
 
@@ -242,10 +246,11 @@ class _Spreading(Executor):
     """Shared logic of the back-ends with workers: cost estimates, chunking, fallback."""
 
     min_seconds: float = MIN_SECONDS
+    _local = True  # map() may run one item, or one worker's work, in the caller instead
 
     def _init_costs(self, min_seconds):
         self.min_seconds = MIN_SECONDS if min_seconds is None else float(min_seconds)
-        self._cost: dict = {}  # (id of shared, row width) -> seconds per row
+        self._cost: dict = {}  # (id of shared, row width) -> _Rates
         self._cost_lock = threading.Lock()
 
     def map(self, fn, items, *, shared=None, cancel=None, progress=None):
@@ -253,7 +258,9 @@ class _Spreading(Executor):
         check = _cancel_check(cancel)
         if check is not None and check():
             raise _stopped()
-        if self.jobs < 2 or len(items) < 2:
+        if not items:
+            return []
+        if self._local and (self.jobs < 2 or len(items) < 2):
             return InProcessExecutor().map(fn, items, shared=shared, cancel=cancel,
                                            progress=progress)
         parts = self.chunks(items)
@@ -272,46 +279,74 @@ class _Spreading(Executor):
         check = _cancel_check(cancel)
         if check is not None and check():
             raise _stopped()
-        m = len(rows)
         key = (id(shared), rows.shape[1] if rows.ndim > 1 else 0)
         with self._cost_lock:
-            cost = self._cost.get(key)
+            rate = self._cost.setdefault(key, _Rates())
+            while len(self._cost) > 64:  # estimates of tests long gone
+                self._cost.pop(next(iter(self._cost)))
         head = []
-        if cost is None or self.jobs < 2 or m < 2:
+        if rate.here is None or self.jobs < 2 or len(rows) < 2:
             # time the first row here (its answer is kept): the estimate decides the rest
             started = time.perf_counter()
             head = [np.asarray(fn(shared, rows[:1]))]
-            cost = time.perf_counter() - started
-            self._learn(key, cost, 1)
+            rate.learn("here", time.perf_counter() - started, 1)
         rest = rows[len(head):]
         if not len(rest):
             return np.concatenate(head)
-        if self.jobs < 2 or len(rest) < 2 or cost * len(rest) < self.min_seconds:
+        if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < self.min_seconds \
+                or not rate.spread_pays():
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
-            self._learn(key, time.perf_counter() - started, len(rest))
+            rate.learn("here", time.perf_counter() - started, len(rest))
             return np.concatenate(head + [out])
         # Between one and three chunks per worker, of about CHUNK_SECONDS each: enough to
         # even out the workers' loads, few enough that rows sharing a conditioning set (and
         # the test's cached pieces for it) mostly stay together.
+        cost = rate.work if rate.work is not None else rate.here
         count = min(3 * self.jobs, max(self.jobs, int(np.ceil(cost * len(rest)
                                                               / CHUNK_SECONDS))))
         cuts = _cuts(len(rest), count, None if groups is None
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
+        started = time.perf_counter()
         outs, seconds = self._dispatch(fn, shared, parts, "rows", check, None)
-        self._learn(key, seconds, len(rest))
+        rate.learn("spread", time.perf_counter() - started, len(rest))
+        rate.learn("work", seconds, len(rest))
         return np.concatenate(head + [np.asarray(o) for o in outs])
-
-    def _learn(self, key, seconds, count):
-        per_row = seconds / max(count, 1)
-        with self._cost_lock:
-            old = self._cost.get(key)
-            self._cost[key] = per_row if old is None else 0.5 * (old + per_row)
 
     def _dispatch(self, fn, shared, parts, mode, cancelled, tick):
         """Run every part; return (outputs in order, worker seconds summed)."""
         raise NotImplementedError
+
+
+class _Rates:
+    """Running estimates, in seconds per row, for one kind of batch.
+
+    ``here``: in the caller; ``spread``: wall time when spread over the workers (transport
+    included); ``work``: the workers' own time (sizes chunks). Spreading is chosen while it is
+    measured faster than working here, and tried again now and then (or working here, when
+    spreading wins) so that a change of load on the machine is noticed.
+    """
+
+    EXPLORE_EVERY = 8
+
+    def __init__(self):
+        self.here = self.spread = self.work = None
+        self.decisions = 0
+
+    def learn(self, which: str, seconds: float, count: int) -> None:
+        per_row = seconds / max(count, 1)
+        old = getattr(self, which)
+        setattr(self, which, per_row if old is None else 0.5 * (old + per_row))
+
+    def spread_pays(self) -> bool:
+        if self.spread is None:
+            return True
+        self.decisions += 1
+        faster = self.spread < self.here
+        # the first estimate of working here came from one cold row: check it early
+        explore = self.decisions == 1 or self.decisions % self.EXPLORE_EVERY == 0
+        return faster != explore
 
 
 def _cuts(m: int, count: int, groups) -> list[int]:
@@ -599,6 +634,8 @@ class DaskExecutor(_Spreading):
     Every worker needs Edgewise installed (the same version). Shared objects are sent once
     with ``scatter(..., broadcast=True)``; ``jobs`` is the cluster's total worker threads.
     """
+
+    _local = False  # work given to a cluster runs there, however small
 
     def __init__(self, address: str, *, timeout: float = CLUSTER_TIMEOUT,
                  min_seconds: float | None = None):

@@ -283,3 +283,25 @@ def test_command_line_unreachable_cluster(tmp_path, capsys, monkeypatch):
     assert code == 2 and len(err) == 1
     assert "cannot reach the cluster at tcp://127.0.0.1:9" in err[0]
     assert "Traceback" not in err[0] and not out.exists()
+
+
+def kill_own_worker(x):
+    os.kill(os.getpid(), signal.SIGKILL)
+
+
+@pytest.mark.slow
+def test_cluster_worker_lost_too_often_is_reported():
+    # Dask's own rule: a task that has lost `allowed-failures` workers is given up
+    # (distributed documentation, "KilledWorker"); here 0, so the first loss ends it.
+    import dask
+    with dask.config.set({"distributed.scheduler.allowed-failures": 0}), \
+            warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        local = distributed.LocalCluster(n_workers=1, processes=True, threads_per_worker=1,
+                                         host="127.0.0.1", dashboard_address=":0")
+    try:
+        with make_executor(cluster=local.scheduler_address) as ex:
+            with pytest.raises(WorkerError, match="were lost repeatedly"):
+                ex.map(kill_own_worker, range(2))
+    finally:
+        local.close()
