@@ -172,25 +172,41 @@ def parallel_figures(quick: bool = False, repeat: int | None = None, only=None) 
     return out
 
 
-def format_section(figures: dict, machine: str, quick: bool, repeat: int) -> str:
+def _autogroup() -> str:
+    try:
+        return Path("/proc/sys/kernel/sched_autogroup_enabled").read_text().strip()
+    except OSError:
+        return "unknown"
+
+
+def format_section(figures: dict, machine: str, quick: bool, repeat: int,
+                   load: float = float("nan")) -> str:
     lines = [SECTION, "",
              "Speed-up of a whole search on 2 local worker processes (`--jobs 2`) over the "
              "same search in-process: best in-process time / best 2-process time, the two "
              f"run alternately {repeat} time(s) in one run (worker start-up included). "
              "Measured by `python tests/benchmarks/bench_parallel.py --write "
              "docs/benchmarks.md` (also run by `edgewise bench`).", "",
-             "| search | tests | in-process s | 2 processes s | ratio | same edges | goal |",
-             "|---|---|---|---|---|---|---|"]
+             "| search | tests | in-process s | 2 processes s | ratio | CPU s in-process / "
+             "2 processes | same edges | goal |",
+             "|---|---|---|---|---|---|---|---|"]
     goals = {"kci": "≥ 1.6", "mixed": "≥ 1.6", "g-squared": "≥ 0.9 (never > 10 % slower)"}
     for test, fig in figures.items():
         lines.append(f"| {fig['label']} | {fig['tests']} | {fig['in_process_s']:.2f} | "
                      f"{fig['two_processes_s']:.2f} | {fig['speedup']:.2f} | "
+                     f"{fig['cpu_in_process_s']:.2f} / {fig['cpu_two_processes_s']:.2f} | "
                      f"{'yes' if fig['same_edges'] else 'NO'} | {goals.get(test, '')} |")
-    lines += ["", f"Machine: {machine}. Measured {time.strftime('%Y-%m-%d %H:%M')}"
-              + (" (quick sizes)" if quick else "") + f"; load average before the run "
-              f"{os.getloadavg()[0]:.1f}. The machine was shared with other work at the "
-              "time, so absolute times vary between runs; the ratios compare runs made "
-              "alternately within one run.", ""]
+    lines += ["", "CPU seconds count this process and its worker processes (their sum, "
+              "best of the runs); the 2-process search may move batches back in-process when "
+              "spreading them is measured slower (docs/parallel.md).", "",
+              f"Machine: {machine}. Measured {time.strftime('%Y-%m-%d %H:%M')}"
+              + (" (quick sizes)" if quick else "") + f"; load average {load:.1f} before and "
+              f"{os.getloadavg()[0]:.1f} after the run. The machine was shared with 7 other "
+              "people's work at the time, and Linux shared the CPU between sessions "
+              f"(sched_autogroup_enabled = {_autogroup()}): with the cores busy, two worker "
+              "processes got about the CPU time of one, so the wall-clock ratios here are "
+              "what a busy machine gives, not what free cores give. Absolute times vary "
+              "between runs; the ratios compare runs made alternately within one run.", ""]
     return "\n".join(lines)
 
 
@@ -208,9 +224,8 @@ def main(argv=None) -> dict:
     if args.write:
         from discovery.bench import machine_description, replace_section
         replace_section(Path(args.write), format_section(
-            figures, machine_description(), args.quick, args.repeat or (1 if args.quick
-                                                                          else 3)))
-    _ = load
+            figures, machine_description(), args.quick,
+            args.repeat or (1 if args.quick else 3), load))
     return {f"{k}_speedup_2_processes": v["speedup"] for k, v in figures.items()}
 
 
