@@ -77,6 +77,8 @@ __all__ = ["Executor", "InProcessExecutor", "ProcessExecutor", "DaskExecutor", "
 MIN_SECONDS = 0.03
 #: Seconds of work a chunk aims at (more chunks than workers keep the workers evenly busy).
 CHUNK_SECONDS = 0.1
+#: Spread batches only while the workers together get at least this many cores of CPU.
+SPREAD_CORES = 1.25
 #: Shared objects a worker keeps (the most recent ones).
 _KEEP_SHARED = 2
 #: Seconds to wait for a cluster's scheduler before giving up.
@@ -211,8 +213,8 @@ class InProcessExecutor(Executor):
 # ------------------------------------------------------------------------------ spreading
 
 def _run_piece(fn, shared, part, mode):
-    """What a worker does with one piece: (output, seconds, warnings raised)."""
-    started = time.perf_counter()
+    """What a worker does with one piece: (output, (wall, CPU seconds), warnings raised)."""
+    started, cpu = time.perf_counter(), time.process_time()
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         with blas_threads(1):
@@ -222,7 +224,8 @@ def _run_piece(fn, shared, part, mode):
                 out = [fn(item) for item in part]
             else:
                 out = [fn(shared, item) for item in part]
-    return out, time.perf_counter() - started, [(w.category, str(w.message)) for w in caught]
+    spent = (time.perf_counter() - started, time.process_time() - cpu)
+    return out, spent, [(w.category, str(w.message)) for w in caught]
 
 
 def _rewarn(caught):
@@ -250,6 +253,8 @@ class _Spreading(Executor):
 
     def _init_costs(self, min_seconds):
         self.min_seconds = MIN_SECONDS if min_seconds is None else float(min_seconds)
+        self._cores = None  # CPU the workers got together, in cores (running estimate)
+        self._held_back = 0
         self._cost: dict = {}  # (id of shared, row width) -> _Rates
         self._cost_lock = threading.Lock()
 
@@ -294,7 +299,7 @@ class _Spreading(Executor):
         if not len(rest):
             return np.concatenate(head)
         if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < self.min_seconds \
-                or not rate.spread_pays():
+                or not self._spreading_pays():
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
             rate.learn("here", time.perf_counter() - started, len(rest))
@@ -309,44 +314,44 @@ class _Spreading(Executor):
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
         started = time.perf_counter()
-        outs, seconds = self._dispatch(fn, shared, parts, "rows", check, None)
-        rate.learn("spread", time.perf_counter() - started, len(rest))
+        outs, (seconds, cpu) = self._dispatch(fn, shared, parts, "rows", check, None)
+        wall = time.perf_counter() - started
         rate.learn("work", seconds, len(rest))
+        if wall > 0.02:  # the cores the workers got together, while they computed
+            cores = cpu / wall
+            self._cores = cores if self._cores is None else 0.5 * (self._cores + cores)
         return np.concatenate(head + [np.asarray(o) for o in outs])
 
+    def _spreading_pays(self) -> bool:
+        """Whether the workers together get more CPU than the caller would alone.
+
+        Spreading costs extra work (each worker builds its own caches; two busy cores also
+        slow each other), about a quarter more CPU for the kernel test. It pays only when
+        the workers together get clearly more than one core; while other work keeps the
+        cores busy they do not, and batches stay in-process. Every eighth batch held back is
+        spread anyway, to notice when cores come free.
+        """
+        if self._cores is None or self._cores >= SPREAD_CORES:
+            return True
+        self._held_back += 1
+        return self._held_back % 8 == 0
+
     def _dispatch(self, fn, shared, parts, mode, cancelled, tick):
-        """Run every part; return (outputs in order, worker seconds summed)."""
+        """Run every part; return (outputs in order, (wall, CPU) seconds of the workers)."""
         raise NotImplementedError
 
 
 class _Rates:
-    """Running estimates, in seconds per row, for one kind of batch.
-
-    ``here``: in the caller; ``spread``: wall time when spread over the workers (transport
-    included); ``work``: the workers' own time (sizes chunks). Spreading is chosen while it is
-    measured faster than working here, and tried again now and then (or working here, when
-    spreading wins) so that a change of load on the machine is noticed.
-    """
-
-    EXPLORE_EVERY = 8
+    """Running estimates, in seconds per row, for one kind of batch: ``here`` in the caller
+    (decides whether a batch is too small to ship), ``work`` in the workers (sizes chunks)."""
 
     def __init__(self):
-        self.here = self.spread = self.work = None
-        self.decisions = 0
+        self.here = self.work = None
 
     def learn(self, which: str, seconds: float, count: int) -> None:
         per_row = seconds / max(count, 1)
         old = getattr(self, which)
         setattr(self, which, per_row if old is None else 0.5 * (old + per_row))
-
-    def spread_pays(self) -> bool:
-        if self.spread is None:
-            return True
-        self.decisions += 1
-        faster = self.spread < self.here
-        # the first estimate of working here came from one cold row: check it early
-        explore = self.decisions == 1 or self.decisions % self.EXPLORE_EVERY == 0
-        return faster != explore
 
 
 def _cuts(m: int, count: int, groups) -> list[int]:
@@ -524,7 +529,7 @@ class ProcessExecutor(_Spreading):
         token, payload = self._token_of(shared)
         todo = deque(range(len(parts)))
         outs: list = [None] * len(parts)
-        seconds = 0.0
+        seconds = np.zeros(2)
         busy: dict = {}  # conn -> worker
         try:
             while todo or busy:
@@ -724,10 +729,11 @@ class DaskExecutor(_Spreading):
             with contextlib.suppress(Exception):
                 self._client.cancel(futures)
             raise
-        outs, seconds = [], 0.0
+        outs = []
+        seconds = np.zeros(2)
         for out, spent, caught in results:
             outs.append(out)
-            seconds += spent
+            seconds = seconds + spent
             _rewarn(caught)
         return outs, seconds
 
