@@ -25,10 +25,10 @@ Why parallel work used to be slower, and what this module does about it
       few tens of milliseconds each, at least one per worker;
     * **small batches stay in-process**: when a batch's estimated cost is below
       ``min_seconds`` (default 30 ms) shipping it cannot pay, and it runs where it is;
-    * **spreading must pay**: the wall time per row spread over the workers and in-process
-      are both measured, and a kind of batch is spread only while that is faster (the other
-      way is tried again every few batches, so a change of load is noticed). On a machine
-      whose cores are busy with other work, spreading gains nothing and is dropped;
+    * **spreading must pay**: each spread batch measures how much CPU the workers got
+      together (their CPU time over the batch's wall time); below :data:`SPREAD_CORES`
+      (other work keeps the cores busy), the extra work of spreading cannot pay, and
+      batches stay in-process, every eighth one being spread anyway to notice free cores;
     * **BLAS is single-threaded in workers**, which already share the cores.
 
 Faults
