@@ -313,6 +313,7 @@ class _Spreading(Executor):
         cuts = _cuts(len(rest), count, None if groups is None
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
+        self._prepare()  # start workers outside the timing below
         started = time.perf_counter()
         outs, (seconds, cpu) = self._dispatch(fn, shared, parts, "rows", check, None)
         wall = time.perf_counter() - started
@@ -321,6 +322,9 @@ class _Spreading(Executor):
             cores = cpu / wall
             self._cores = cores if self._cores is None else 0.5 * (self._cores + cores)
         return np.concatenate(head + [np.asarray(o) for o in outs])
+
+    def _prepare(self) -> None:
+        """Get workers ready (a no-op where they are always ready)."""
 
     def _spreading_pays(self) -> bool:
         """Whether the workers together get more CPU than the caller would alone.
@@ -507,6 +511,10 @@ class ProcessExecutor(_Spreading):
             while len(self._workers) < self.jobs:
                 self._workers.append(_Worker(context))
         return self._workers
+
+    def _prepare(self):
+        with self._lock:
+            self._ready_workers()
 
     def _token_of(self, obj):
         if obj is None:
