@@ -507,7 +507,10 @@ class ProcessExecutor(_Spreading):
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
         if len(self._workers) < self.jobs:
-            context = multiprocessing.get_context(_start_method())
+            method = _start_method()
+            context = multiprocessing.get_context(method)
+            if method == "forkserver":  # workers fork from a server that imported these once
+                context.set_forkserver_preload(["discovery.independence", "discovery.search"])
             while len(self._workers) < self.jobs:
                 self._workers.append(_Worker(context))
         return self._workers

@@ -191,6 +191,23 @@ def test_stop_during_a_spread_search_gives_no_result():
             discover(frame, test="kci", executor=ex, progress=progress, cancel=stop)
 
 
+def test_workers_start_safely_beside_threads():
+    # With other threads running (the window's worker thread, say), forking is unsafe
+    # (Python documentation, multiprocessing "Contexts and start methods"): workers then
+    # come from a fork server instead, with the same results.
+    from discovery.executor import _start_method
+    stop = threading.Event()
+    other = threading.Thread(target=stop.wait)
+    other.start()
+    try:
+        assert _start_method() in ("forkserver", "spawn")
+        with ProcessExecutor(2) as ex:
+            assert ex.map(double, range(7)) == list(map(double, range(7)))
+    finally:
+        stop.set()
+        other.join()
+
+
 def test_jobs_must_be_an_integer():
     with pytest.raises(SettingsError, match="'jobs' parameter must be an integer"):
         make_executor("two")
