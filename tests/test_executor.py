@@ -220,6 +220,30 @@ def test_workers_start_safely_beside_threads():
         other.join()
 
 
+class BrokenKernel(KernelCI):
+    """A kernel test that fails in worker processes (for the fault path only)."""
+
+    def _batch(self, triples):
+        import multiprocessing
+        if multiprocessing.parent_process() is not None:
+            raise IndexError("a deliberate fault in a conditional test")
+        return super()._batch(triples)
+
+
+def test_fault_in_a_spread_search_is_one_error_and_no_result():
+    frame = sample(300, seed=6)
+    with ProcessExecutor(2, min_seconds=0) as ex:
+        with pytest.raises(WorkerError, match="IndexError: a deliberate fault"):
+            discover(frame, test=BrokenKernel(frame), executor=ex)
+
+
+def test_discover_with_an_unreachable_cluster(monkeypatch):
+    import discovery.executor
+    monkeypatch.setattr(discovery.executor, "CLUSTER_TIMEOUT", 2.0)
+    with pytest.raises(ClusterError, match="cannot reach the cluster at tcp://127.0.0.1:9"):
+        discover(sample(100, seed=1), test="kci", cluster="tcp://127.0.0.1:9")
+
+
 def test_jobs_must_be_an_integer():
     with pytest.raises(SettingsError, match="'jobs' parameter must be an integer"):
         make_executor("two")
