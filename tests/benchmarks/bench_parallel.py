@@ -38,7 +38,11 @@ sys.path.insert(0, str(HERE.parent))
 sys.path.insert(0, str(HERE.parent.parent))
 
 SECTION = "## Parallel work"
-ALARM = HERE.parent.parent.parent.parent / "shared" / "data" / "alarm" / "network.json"
+# the shared data sit beside the repository (or beside the folder of work trees)
+ALARM = next((base / "shared" / "data" / "alarm" / "network.json"
+              for base in (HERE.parents[2], HERE.parents[3])
+              if (base / "shared" / "data" / "alarm" / "network.json").exists()),
+             HERE.parents[2] / "shared" / "data" / "alarm" / "network.json")
 
 
 def mixed_table(n: int, seed: int = 0) -> pd.DataFrame:
