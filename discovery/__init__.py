@@ -29,8 +29,8 @@ __version__ = "0.1.0"
 from .data import Dataset, check_for_search, column_kind, prepare_frame, read_table
 from .exceptions import (DataValidationError, DegenerateDataWarning, DiscoveryError,
                          KnowledgeError, ResourceLimitError, ResultFormatError,
-                         SearchCancelled,
-                         SearchLimitWarning, SettingsError)
+                         SearchCancelled, SearchLimitWarning, SettingsError, WorkerError,
+                         ClusterError)
 from .independence import DSeparationOracle, FisherZ, PValueCache
 from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
 from .knowledge import Knowledge, read_knowledge, write_knowledge
@@ -47,7 +47,7 @@ __all__ = [
     "DSeparationOracle", "FisherZ", "PValueCache",
     "DiscoveryError", "DataValidationError", "KnowledgeError", "SettingsError",
     "ResultFormatError", "ResourceLimitError", "SearchCancelled", "DegenerateDataWarning",
-    "SearchLimitWarning",
+    "SearchLimitWarning", "WorkerError", "ClusterError",
     "control_sets", "ControlSets", "effect_range", "EffectRange", "estimate_effect",
     "ControlSetError",
 ]

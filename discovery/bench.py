@@ -319,7 +319,8 @@ def _extra_benchmarks(quick: bool) -> list[str]:
     """Run tests/benchmarks/bench_*.py of a source checkout, when present."""
     root = Path(__file__).resolve().parent.parent / "tests" / "benchmarks"
     sections = []
-    for name, func in (("bench_tests.py", "main"), ("bench_gui.py", "gui_benchmarks")):
+    for name, func in (("bench_tests.py", "main"), ("bench_parallel.py", "main"),
+                       ("bench_gui.py", "gui_benchmarks")):
         path = root / name
         if not path.exists():
             continue

@@ -54,7 +54,8 @@ def _build_parser() -> argparse.ArgumentParser:
                "      --knowledge example_sets/greenhouse/knowledge.toml \\\n"
                "      --alpha 0.01 --out out/greenhouse.json --figure out/greenhouse.png\n"
                "  edgewise discover example_sets/office_building/data.csv --hidden-causes \\\n"
-               "      --out out/office-pag.json")
+               "      --out out/office-pag.json\n"
+               "  edgewise discover example_sets/bakery_proofing/data.csv --test kci --jobs 2")
     d.add_argument("data", nargs="?", help="CSV, TSV or Parquet file, one column per variable")
     d.add_argument("--test", default="fisher-z", choices=sorted(TEST_NAMES),
                    help="independence test (default: fisher-z)")
@@ -107,6 +108,9 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="list every test's options and exit")
     d.add_argument("--jobs", type=int, default=1, metavar="N",
                    help="worker processes for tests that are not vectorised (default: 1)")
+    d.add_argument("--cluster", metavar="ADDRESS",
+                   help="run those tests on a Dask cluster, e.g. tcp://10.0.0.5:8786 "
+                        "(needs edgewise[cluster]; see docs/parallel.md)")
     d.add_argument("--out", metavar="FILE.json", help="write the result JSON here")
     d.add_argument("--dot", metavar="FILE.dot", help="write the diagram as Graphviz DOT")
     d.add_argument("--graphml", metavar="FILE.graphml", help="write the diagram as GraphML")
@@ -344,7 +348,7 @@ def _cmd_discover(args) -> int:
     for a, b in pairs:  # checked before a possibly long search
         check_names(dataset.variables, a, b, where="the search's variables")
     progress = _Progress(enabled=False if args.quiet else None)
-    with make_executor(args.jobs) as executor:
+    with make_executor(args.jobs, cluster=args.cluster) as executor:
         try:
             result = discover(dataset, test=args.test, alpha=args.alpha,
                               max_depth=args.max_depth, knowledge=knowledge,

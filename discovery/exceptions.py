@@ -12,6 +12,8 @@ __all__ = [
     "ResultFormatError",
     "SearchCancelled",
     "ResourceLimitError",
+    "WorkerError",
+    "ClusterError",
     "DegenerateDataWarning",
     "SearchLimitWarning",
 ]
@@ -43,6 +45,17 @@ class SearchCancelled(DiscoveryError):
 
 class ResourceLimitError(DiscoveryError, MemoryError):
     """The work would need more memory than the machine has; refused before allocating."""
+class WorkerError(DiscoveryError):
+    """Work spread over processes or a cluster failed there (an exception, a lost worker).
+
+    ``remote_traceback`` (when set) holds the worker's traceback, for a bug report.
+    """
+
+    remote_traceback: str = ""
+
+
+class ClusterError(DiscoveryError):
+    """A cluster cannot be used: unreachable, no workers, or Edgewise missing on them."""
 
 
 class DegenerateDataWarning(UserWarning):

@@ -187,10 +187,24 @@ class IndependenceTest:
             return np.empty(0)
         if executor is None or self.vectorised or len(idx) < 2 or executor.jobs == 1:
             return np.asarray(self._batch_array(idx)[1], dtype=float)
-        parts = executor.chunks(range(len(idx)))
-        results = executor.map(_pvalues_of_chunk, [(self, idx[part[0]:part[-1] + 1])
-                                                   for part in parts])
-        return np.concatenate([np.asarray(r, dtype=float) for r in results])
+        if not hasattr(executor, "map_rows"):  # an executor of the older, map-only kind
+            parts = executor.chunks(range(len(idx)))
+            results = executor.map(_pvalues_of_chunk, [(self, idx[part[0]:part[-1] + 1])
+                                                       for part in parts])
+            return np.concatenate([np.asarray(r, dtype=float) for r in results])
+        # The test (with its data) goes to each worker once; chunks carry index rows only.
+        # Rows sorted by conditioning set first keep tests that share a set (and the features
+        # or residual makers a test builds for it) in one chunk.
+        order = np.lexsort(idx[:, ::-1].T) if idx.shape[1] <= 2 else \
+            np.lexsort(np.vstack([idx[:, 1], idx[:, 0], idx[:, :1:-1].T]))
+        rows = idx[order]
+        groups = None
+        if rows.shape[1] > 2:  # label each row by its conditioning set
+            change = np.any(rows[1:, 2:] != rows[:-1, 2:], axis=1)
+            groups = np.concatenate([[0], np.cumsum(change)])
+        out = np.empty(len(idx))
+        out[order] = executor.map_rows(_pvalues_of_rows, self, rows, groups=groups)
+        return out
 
     def test(self, x: str, y: str, given: Iterable[str] = ()) -> IndependenceResult:
         """Run one test by variable names and return an :class:`IndependenceResult`."""
@@ -208,6 +222,10 @@ class IndependenceTest:
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}({len(self.variables)} variables, n={self.n})"
+
+
+def _pvalues_of_rows(test, part):
+    return np.asarray(test._batch_array(part)[1], dtype=float)
 
 
 def _pvalues_of_chunk(args):

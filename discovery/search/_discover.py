@@ -41,7 +41,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
              missing: str = "drop", columns=None, cache: PValueCache | None = None,
              executor=None, progress: Callable | None = None, cancel=None,
              test_options: dict | None = None, hidden_causes: bool = False,
-             pds_budget="auto") -> SearchResult:
+             pds_budget="auto", jobs: int | None = None,
+             cluster: str | None = None) -> SearchResult:
     """Search for the equivalence class of causal diagrams that fits the data.
 
     Parameters
@@ -65,7 +66,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     cache : PValueCache, optional
         Shared p-value cache; pass the same one to later searches to reuse their tests.
     executor : discovery.executor.Executor, optional
-        Where tests that are not vectorised run (default: in-process).
+        Where tests that are not vectorised run (default: in-process, or as ``jobs`` and
+        ``cluster`` say).
     progress : callable, optional
         Called with ``{"phase", "level", "done", "planned"}`` as the search advances.
     cancel : callable or threading.Event, optional
@@ -82,6 +84,12 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         run: ``"auto"`` allows four times the tests of the adjacency search (at least
         5,000), None no limit. Pairs left unchecked are reported in the notes and with a
         :class:`SearchLimitWarning`.
+    jobs : int, optional
+        Without ``executor``: local worker processes for tests that are not vectorised
+        (see :func:`discovery.executor.make_executor`); started and ended by this call.
+    cluster : str, optional
+        Without ``executor``: a Dask scheduler's address (``"tcp://host:port"``) to run
+        those tests on instead.
 
     Returns
     -------
@@ -97,6 +105,10 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         The knowledge names unknown variables or contradicts itself.
     SearchCancelled
         ``cancel`` fired before the search finished.
+    ClusterError
+        ``cluster`` cannot be reached or used.
+    WorkerError
+        A test failed in a worker process or on the cluster, or a worker was lost.
 
     Notes
     -----
@@ -114,6 +126,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     >>> [e.arrow() for e in result.edges]
     ['rain → wet', 'sprinkler → wet', 'wet → slippery']
     """
+    if executor is None and ((jobs is not None and jobs != 1) or cluster):
+        from ..executor import make_executor
+        with make_executor(jobs, cluster) as owned:
+            return discover(data, test=test, alpha=alpha, max_depth=max_depth,
+                            knowledge=knowledge, collider_rule=collider_rule, missing=missing,
+                            columns=columns, cache=cache, executor=owned, progress=progress,
+                            cancel=cancel, test_options=test_options,
+                            hidden_causes=hidden_causes, pds_budget=pds_budget)
     started = t_data = time.perf_counter()
     knowledge = knowledge if knowledge is not None else Knowledge()
     if not isinstance(knowledge, Knowledge):
@@ -188,6 +208,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                 notes.append(f"depth limited to {cap} by the number of rows ({test_obj.n})")
             depth = cap if depth is None else depth
     cancelled = _cancel_check(cancel)
+    if executor is not None and cancelled is not None and hasattr(executor, "watching"):
+        executor = executor.watching(cancelled)  # Stop reaches work running on workers
     if cache is None and settings.collider_rule == "standard":
         # Nothing could be reused: no earlier search, and the standard rule runs no test
         # twice. Skip the cache's bookkeeping.
