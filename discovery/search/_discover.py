@@ -402,7 +402,30 @@ def _separating_sets_finder(adjacent, pvalues, alpha, depth, cancelled):
     return find
 
 
-def _untestable_pairs(names, log, log_p, test) -> dict:
+def _edge_tallies(log, pairs, n) -> tuple[np.ndarray, np.ndarray]:
+    """For each pair ``(x, y)`` of ``pairs``: how many tests of the log it had and their
+    largest p-value (-inf when none gave one), read block by block so that a log of hundreds
+    of millions of tests needs no copy of itself."""
+    flat = np.array([x * n + y for x, y in pairs], dtype=np.int64)
+    order = np.argsort(flat)
+    sorted_flat = flat[order]
+    count = np.zeros(len(flat), dtype=np.int64)
+    largest = np.full(len(flat), -np.inf)
+    if not len(flat):
+        return count, largest
+    for idx, p in log:
+        keys = idx[:, 0].astype(np.int64) * n + idx[:, 1]
+        at = np.minimum(np.searchsorted(sorted_flat, keys), len(flat) - 1)
+        hit = sorted_flat[at] == keys
+        count += np.bincount(at[hit], minlength=len(flat))
+        finite = hit & ~np.isnan(p)
+        np.maximum.at(largest, at[finite], p[finite])
+    out_count, out_largest = np.empty_like(count), np.empty_like(largest)
+    out_count[order], out_largest[order] = count, largest
+    return out_count, out_largest
+
+
+def _untestable_pairs(names, log, test) -> dict:
     """``{(x, y): reason}`` for every pair with a test that returned no p-value (NaN).
 
     The reason is the test's own (``test.untestable_reason(x, y, given)`` with variable
@@ -410,7 +433,7 @@ def _untestable_pairs(names, log, log_p, test) -> dict:
     :data:`~discovery.result.NO_PVALUE`. The first such test of the pair is described.
     """
     from ..result import NO_PVALUE
-    if not len(log_p) or not np.isnan(log_p).any():
+    if not any(np.isnan(p).any() for _, p in log):
         return {}
     hook = getattr(test, "untestable_reason", None)
     first = {}
@@ -449,38 +472,16 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
     # Indices follow name order, so the log's order (level by level, pair by pair) is already
     # independent of column order and needs no sorting.
     tests = TestLog.from_blocks(names, skeleton.log)
-    pair_key = np.concatenate([b[0][:, 0].astype(np.int64) * len(names) + b[0][:, 1]
-                               for b in skeleton.log]) \
-        if skeleton.log else np.empty(0, dtype=np.intp)
-    log_p = np.concatenate([b[1] for b in skeleton.log]) if skeleton.log else np.empty(0)
     n = len(names)
-    if n * n <= 4_000_000:  # dense per-pair tallies: no sorting of the log
-        keys = None
-        n_tests = np.bincount(pair_key, minlength=n * n)
-        max_p = np.full(n * n, -np.inf)
-        finite = ~np.isnan(log_p)
-        np.maximum.at(max_p, pair_key[finite], log_p[finite])
-    else:
-        keys, ids = np.unique(pair_key, return_inverse=True)
-        n_tests = np.bincount(ids, minlength=len(keys))
-        max_p = np.full(len(keys), -np.inf)
-        finite = ~np.isnan(log_p)
-        np.maximum.at(max_p, ids[finite], log_p[finite])
-    untestable = _untestable_pairs(names, skeleton.log, log_p,
+    untestable = _untestable_pairs(names, skeleton.log,
                                    test_obj.inner if isinstance(test_obj, NameOrderedTest)
                                    else test_obj)
     locked_pairs = knowledge.required_adjacent()
     heads = getattr(orientation, "heads", None)
     pairs = [(x, y) for x in range(n) for y in skeleton.adjacent[x] if key(x) < key(y)]
-    flat = np.array([x * n + y for x, y in pairs], dtype=np.int64)
-    if keys is None:
-        at, ran = flat, n_tests[flat] > 0
-    else:
-        at = np.minimum(np.searchsorted(keys, flat), max(len(keys) - 1, 0))
-        ran = keys[at] == flat if len(keys) else np.zeros(len(flat), dtype=bool)
-    tests_run = np.where(ran, n_tests[at] if len(n_tests) else 0, 0).tolist()
-    largest = np.where(ran, max_p[at] if len(max_p) else np.nan, np.nan)
-    largest = np.where(np.isfinite(largest), largest, np.nan).tolist()
+    n_tests, max_p = _edge_tallies(skeleton.log, pairs, n)
+    tests_run = n_tests.tolist()
+    largest = np.where(np.isfinite(max_p), max_p, np.nan).tolist()
     edges = []
     marks = getattr(orientation, "marks", None)  # a PAG (the hidden-causes mode)
     for (x, y), count, mp in zip(pairs, tests_run, largest):
