@@ -1,10 +1,12 @@
 """Memory estimates made before large allocations, so that work that cannot fit is refused
 with one clear line instead of failing (or swapping the machine) half-way.
 
-The figures are measured, not derived: the search's first level holds every pair of variables
-at once, about 400 bytes a pair at its peak (measured with ``resource.getrusage`` on 1,000 and
-2,000 variables; docs/benchmarks.md), and a simulated table costs its float array, the frame
-and the CSV text written from it.
+The figures are measured, not derived: the search's first levels hold every pair of variables
+at once, about 600 bytes a pair at their peak (peak resident memory from
+``resource.getrusage``: 4.8 GiB for 4,000 variables of 30 rows, 8.0 million pairs;
+docs/benchmarks.md), and a simulated table costs its float array, the frame and the CSV text
+written from it. Deeper levels are bounded as they start (see ``discovery.search``: a level
+whose evidence could outgrow the free memory is not run).
 """
 
 from __future__ import annotations
@@ -16,8 +18,8 @@ from .exceptions import ResourceLimitError
 __all__ = ["available_memory", "search_memory_estimate", "check_search_memory",
            "check_simulation_memory"]
 
-#: Peak bytes per pair of variables in the search's first level (measured; see above).
-BYTES_PER_PAIR = 400
+#: Peak bytes per pair of variables in the search's first levels (measured; see above).
+BYTES_PER_PAIR = 600
 #: Bytes a simulated cell costs at its peak: the float array, the frame and its CSV text.
 BYTES_PER_SIMULATED_CELL = 8 * 3 + 24
 
