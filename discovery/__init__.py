@@ -35,9 +35,10 @@ from .result import ASSUMPTIONS, Edge, Removal, SearchResult, load_result
 from .knowledge import Knowledge, read_knowledge, write_knowledge
 from .search import discover
 from .settings import PARAMETERS, SearchSettings
+from .robustness import SupportResult, SweepResult, support, sweep
 
 __all__ = [
-    "discover", "read_table", "prepare_frame", "Dataset", "column_kind", "check_for_search",
+    "discover", "sweep", "support", "SweepResult", "SupportResult", "read_table", "prepare_frame", "Dataset", "column_kind", "check_for_search",
     "Knowledge", "read_knowledge", "write_knowledge",
     "SearchResult", "Edge", "Removal", "load_result", "ASSUMPTIONS",
     "SearchSettings", "PARAMETERS",

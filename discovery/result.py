@@ -333,6 +333,9 @@ class SearchResult:
     notes : tuple of str
     counts, timings, data, software : mappings
     seed : int or None
+    undecided : tuple of (str, str)
+        With the equivalence rule: adjacent pairs the data could neither show related nor
+        show within the margin.
     """
 
     variables: tuple[str, ...]
@@ -349,8 +352,10 @@ class SearchResult:
     data: Mapping = field(default_factory=dict)
     software: Mapping = field(default_factory=dict)
     seed: int | None = None
+    undecided: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self):
+        object.__setattr__(self, "undecided", tuple(tuple(p) for p in self.undecided))
         for name in ("counts", "timings", "data", "software"):
             object.__setattr__(self, name, _freeze(getattr(self, name)))
         if isinstance(self.triples, LazyRecords):  # frozen when first read
@@ -432,6 +437,7 @@ class SearchResult:
             "data": dict(self.data),
             "software": dict(self.software),
             "seed": self.seed,
+            "undecided": [list(p) for p in self.undecided],
             "assumptions": list(ASSUMPTIONS),
         }
 
@@ -521,7 +527,8 @@ def _from_dict(doc, source) -> SearchResult:
         triples=tuple(doc.get("triples", ())), conflicts=tuple(doc.get("conflicts", ())),
         notes=tuple(doc.get("notes", ())), counts=doc.get("counts", {}),
         timings=doc.get("timings", {}), data=doc.get("data", {}),
-        software=doc.get("software", {}), seed=doc.get("seed"))
+        software=doc.get("software", {}), seed=doc.get("seed"),
+        undecided=tuple(tuple(p) for p in doc.get("undecided", ())))
 
 
 def _float(x) -> float:

@@ -14,10 +14,11 @@ from numbers import Integral, Real
 from .exceptions import SettingsError
 
 __all__ = ["Interval", "Choice", "PARAMETERS", "SearchSettings", "COLLIDER_RULES",
-           "MISSING_POLICIES"]
+           "MISSING_POLICIES", "UNRELATED_RULES"]
 
 COLLIDER_RULES = ("standard", "conservative", "majority")
 MISSING_POLICIES = ("drop", "test-wise")
+UNRELATED_RULES = ("significance", "equivalence")
 
 
 @dataclass(frozen=True)
@@ -85,6 +86,12 @@ PARAMETERS = {
                           help="largest conditioning-set size (None: no limit)"),
     "collider_rule": Choice(COLLIDER_RULES, "how unshielded triples are judged colliders"),
     "missing": Choice(MISSING_POLICIES, "drop incomplete rows, or delete test-wise"),
+    "unrelated": Choice(UNRELATED_RULES,
+                        "what makes a pair unrelated: 'significance' (p > alpha) or "
+                        "'equivalence' (two one-sided tests show the effect within the margin)"),
+    "margin": Interval(float, 0.0, 1.0, "neither", allow_none=True,
+                       help="equivalence margin: the largest partial correlation still "
+                            "called unrelated (with unrelated='equivalence')"),
 }
 
 
@@ -112,6 +119,8 @@ class SearchSettings:
     collider_rule: str = "standard"
     missing: str = "drop"
     test_options: tuple = ()  # (name, value) pairs given to the test, sorted by name
+    unrelated: str = "significance"
+    margin: float | None = None
 
     def __post_init__(self):
         options = self.test_options
@@ -128,8 +137,14 @@ class SearchSettings:
         if not isinstance(self.test, str) or not self.test:
             raise SettingsError(f"The 'test' parameter must be a test name. Got "
                                 f"{self.test!r} instead.")
-        for name in ("alpha", "max_depth", "collider_rule", "missing"):
+        for name in ("alpha", "max_depth", "collider_rule", "missing", "unrelated", "margin"):
             check_parameter(name, getattr(self, name))
+        if self.unrelated == "equivalence" and self.margin is None:
+            raise SettingsError("The 'margin' parameter of discover must be a float in (0, 1) "
+                                "when unrelated='equivalence' (e.g. margin=0.05). Got None "
+                                "instead.")
+        if self.margin is not None:
+            object.__setattr__(self, "margin", float(self.margin))
         object.__setattr__(self, "alpha", float(self.alpha))
         if self.max_depth is not None:
             object.__setattr__(self, "max_depth", int(self.max_depth))
@@ -142,5 +157,6 @@ class SearchSettings:
     @classmethod
     def from_dict(cls, values: dict) -> "SearchSettings":
         known = {k: values[k] for k in ("test", "alpha", "max_depth", "collider_rule",
-                                        "missing", "test_options") if k in values}
+                                        "missing", "test_options", "unrelated", "margin")
+                 if k in values}
         return cls(**known)

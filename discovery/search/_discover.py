@@ -34,7 +34,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
              knowledge: Knowledge | None = None, collider_rule: str = "standard",
              missing: str = "drop", columns=None, cache: PValueCache | None = None,
              executor=None, progress: Callable | None = None, cancel=None,
-             test_options: dict | None = None) -> SearchResult:
+             test_options: dict | None = None, unrelated: str = "significance",
+             margin: float | None = None) -> SearchResult:
     """Search for the equivalence class of causal diagrams that fits the data.
 
     Parameters
@@ -65,6 +66,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         When it returns True (or is set), the search stops with ``SearchCancelled``.
     test_options : dict, optional
         Extra keyword arguments for the test's constructor.
+    unrelated : {"significance", "equivalence"}
+        What makes a pair unrelated (the **unrelated rule**): ``"significance"``, a p-value
+        above ``alpha`` (the usual rule); ``"equivalence"``, two one-sided tests at level
+        ``alpha`` show the effect lies within ``±margin`` (Schuirmann 1987; see
+        :mod:`discovery.robustness`). Equivalence works with ``fisher-z`` and ``g-squared``.
+    margin : float in (0, 1), optional
+        The equivalence margin δ (a partial correlation; for G² the mutual information of a
+        correlation of δ). Needed with ``unrelated="equivalence"``.
 
     Returns
     -------
@@ -113,7 +122,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                             f"IndependenceTest. Got {type(test).__name__} instead.")
     settings = SearchSettings(test=test_name, alpha=alpha, max_depth=max_depth,
                               collider_rule=collider_rule, missing=missing,
-                              test_options=dict(test_options or {}))
+                              test_options=dict(test_options or {}), unrelated=unrelated,
+                              margin=margin)
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
@@ -143,6 +153,10 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                 corr = corr[np.ix_(order, order)]
             check_collinearity(dataset, correlation=corr)
     display = tuple(dataset.variables) if dataset is not None else tuple(test_obj.variables)
+    equivalence = settings.unrelated == "equivalence"
+    if equivalence:
+        from ..robustness._equivalence import EquivalenceTest
+        test_obj = EquivalenceTest(test_obj, settings.margin)
     if list(test_obj.variables) != sorted(test_obj.variables):
         test_obj = NameOrderedTest(test_obj)
     # From here on, variable indices follow the order of the names: enumeration and every
@@ -169,6 +183,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     def pvalues(idx):
         return cache.pvalues_array(test_obj, idx, executor=executor)
 
+    # The skeleton separates a pair when p > alpha. Equivalence p-values separate when
+    # p <= alpha: the skeleton sees -p against -alpha (the same order, reversed, exactly),
+    # and the signs are restored after the search.
+    sign = -1.0 if equivalence else 1.0
+    if equivalence:
+        def pvalues(idx, plain=pvalues):
+            return -plain(idx)
+
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
@@ -183,20 +205,25 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # A vectorised test's batches are elementwise work on small arrays: BLAS threads gain
     # nothing there, and threads left spinning after the correlation matrix compete with it.
     with blas_threads(1 if test_obj.vectorised else None):
-        skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
+        skeleton = adjacency_search(len(names), pvalues, alpha=sign * settings.alpha,
+                                    max_depth=depth,
                                     locked=locked, forbidden=forbidden, progress=progress,
                                     cancelled=cancelled, association=test_obj.association(),
                                     batch_limit=None if test_obj.vectorised
                                     else 64 * max(1, getattr(executor, "jobs", 1)),
-                                    may_separate=lambda pairs: test_obj.may_separate(
+                                    may_separate=None if equivalence
+                                    else lambda pairs: test_obj.may_separate(
                                         pairs, settings.alpha))
+        if equivalence:
+            _restore_signs(skeleton)
         t1 = time.perf_counter()
         separating_sets_of = None
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
                 skeleton.adjacent,
-                lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
-                settings.alpha, depth, cancelled)
+                lambda batch: sign * cache.pvalues(test_obj, batch, executor=executor,
+                                                   canonical=True),
+                sign * settings.alpha, depth, cancelled)
         orientation = orient(
             skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
             collider_rule=settings.collider_rule,
@@ -211,8 +238,19 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     if skeleton.unseparated_forbidden:
         notes.append(f"{len(skeleton.unseparated_forbidden)} forbidden pair(s) had no "
                      "separating set in the data; triples through them were left undecided")
+    undecided = ()
+    if equivalence:
+        undecided = _undecided_pairs(skeleton, test_obj, settings.alpha, names)
+        notes.append(f"unrelated rule: equivalence with margin {settings.margin:g}; a pair "
+                     f"was removed only when two one-sided tests (alpha {settings.alpha:g}) "
+                     f"showed its effect within ±{settings.margin:g}; the removed pairs' "
+                     "p-values are equivalence p-values")
+        if undecided:
+            notes.append(f"{len(undecided)} pair(s) undecided (neither shown related nor "
+                         "shown within the margin; kept adjacent): "
+                         + ", ".join(f"{a} — {b}" for a, b in undecided))
     return _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes,
-                         dataset, test_obj, cache, hits0, misses0,
+                         dataset, test_obj, cache, hits0, misses0, undecided,
                          timings={"data_s": t_data - started,
                                   "test_setup_s": t0 - t_data,
                                   "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
@@ -280,8 +318,45 @@ def _software() -> dict:
             "pandas": pandas.__version__, "networkx": networkx.__version__}
 
 
+def _restore_signs(skeleton) -> None:
+    """Undo the sign flip of the equivalence rule in the skeleton's record (p-values back to
+    the equivalence p-values)."""
+    skeleton.log[:] = [(idx, -p) for idx, p in skeleton.log]
+    sepsets = skeleton.sepsets
+    sepsets._blocks = [(rows, -p) for rows, p in sepsets._blocks]
+    skeleton.locked_conflicts[:] = [(x, y, s, -p) for x, y, s, p in skeleton.locked_conflicts]
+
+
+def _undecided_pairs(skeleton, test_obj, alpha, names) -> tuple:
+    """Adjacent pairs that some test could not call related (significance p > alpha) and
+    that no test showed unrelated (equivalence p > alpha): the data cannot tell."""
+    n = len(names)
+    adjacent = np.zeros((n, n), dtype=bool)
+    for x, ys in enumerate(skeleton.adjacent):
+        adjacent[x, list(ys)] = True
+    found = set()
+    for idx, _ in skeleton.log:
+        rows = idx[adjacent[idx[:, 0], idx[:, 1]]]
+        if not len(rows):
+            continue
+        plain = test_obj.significance_pvalues(rows) if hasattr(
+            test_obj, "significance_pvalues") else _inner_significance(test_obj, rows)
+        for x, y in rows[plain > alpha][:, :2].tolist():
+            found.add((names[x], names[y]))
+    return tuple(sorted(found))
+
+
+def _inner_significance(test_obj, rows):
+    """Significance p-values through a NameOrderedTest around an EquivalenceTest."""
+    m = np.asarray(test_obj._to_inner, dtype=np.intp)
+    mapped = np.sort(m[rows[:, :2]], axis=1)
+    inner_rows = np.column_stack([mapped, np.sort(m[rows[:, 2:]], axis=1)]) \
+        if rows.shape[1] > 2 else mapped
+    return test_obj.inner.significance_pvalues(inner_rows)
+
+
 def _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes, dataset,
-                  test_obj, cache, hits0, misses0, timings) -> SearchResult:
+                  test_obj, cache, hits0, misses0, undecided, timings) -> SearchResult:
     key = rank.__getitem__
     index = {v: i for i, v in enumerate(names)}
 
@@ -373,7 +448,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         triples=LazyRecords(orientation.triple_records),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
-        software=_software(), seed=getattr(test_obj, "seed", None))
+        software=_software(), seed=getattr(test_obj, "seed", None), undecided=undecided)
 
 
 class NameOrderedTest(IndependenceTest):
