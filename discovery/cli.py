@@ -65,6 +65,11 @@ def _build_parser() -> argparse.ArgumentParser:
                         "(default: drop)")
     d.add_argument("--columns", metavar="A,B,...",
                    help="comma-separated columns to include (default: all usable)")
+    from .settings import PARAMETERS, UNRELATED_RULES
+    d.add_argument("--unrelated", default="significance", choices=UNRELATED_RULES,
+                   help=PARAMETERS["unrelated"].help + " (default: significance)")
+    d.add_argument("--margin", type=float, default=None, metavar="DELTA",
+                   help=PARAMETERS["margin"].help)
     d.add_argument("--test-option", action="append", default=[], metavar="NAME=VALUE",
                    dest="test_option",
                    help="an option of the chosen test, repeatable (e.g. --test-option "
@@ -115,6 +120,8 @@ def _build_parser() -> argparse.ArgumentParser:
                     ".edgewise session.",
         epilog="example:\n  edgewise gui example_sets/greenhouse/data.csv")
     g.add_argument("path", nargs="?", help="data file or .edgewise session to open")
+    from . import cli_robustness
+    cli_robustness.register(sub)
     return parser
 
 
@@ -130,8 +137,9 @@ def main(argv=None) -> int:
     if args.command is None:
         parser.print_help()
         return 2
+    from .cli_robustness import HANDLERS as robustness_handlers
     handler = {"discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
-               "gui": _cmd_gui}[args.command]
+               "gui": _cmd_gui, **robustness_handlers}[args.command]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # notes reach the user through the result
@@ -239,7 +247,8 @@ def _cmd_discover(args) -> int:
             result = discover(dataset, test=args.test, alpha=args.alpha,
                               max_depth=args.max_depth, knowledge=knowledge,
                               collider_rule=args.collider_rule, executor=executor,
-                              progress=progress, test_options=test_options or None)
+                              progress=progress, test_options=test_options or None,
+                              unrelated=args.unrelated, margin=args.margin)
         finally:
             progress.close()
     if outputs["--out"]:

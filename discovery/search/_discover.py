@@ -124,6 +124,13 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                               collider_rule=collider_rule, missing=missing,
                               test_options=dict(test_options or {}), unrelated=unrelated,
                               margin=margin)
+    if settings.unrelated == "equivalence" and test_obj is None:
+        from ..robustness._equivalence import EQUIVALENCE_TESTS
+        if test_name not in EQUIVALENCE_TESTS:
+            raise SettingsError(f"unrelated='equivalence' works with the tests "
+                                f"{', '.join(EQUIVALENCE_TESTS)}; test {test_name!r} has no "
+                                "effect size to bound: use unrelated='significance' or "
+                                "another test")
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
