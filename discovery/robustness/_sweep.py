@@ -26,6 +26,8 @@ from ._common import check_ladder, csv_text, mark_text
 
 __all__ = ["sweep", "SweepResult", "EdgeSurvival", "DEFAULT_ALPHAS"]
 
+_SETTINGS = ("alpha", "max_depth", "collider_rule", "missing", "unrelated", "margin")
+
 #: The default ladder: 12 log-spaced rungs from 1e-4 to 0.2.
 DEFAULT_ALPHAS = tuple(float(f"{v:.3g}") for v in np.geomspace(1e-4, 0.2, 12))
 
@@ -222,7 +224,8 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
     [('rain', 'wet', 3), ('sprinkler', 'wet', 3)]
     """
     from ..search import discover
-    from ..search._discover import _as_dataset
+    from ..search._discover import _as_dataset, _test_for
+    from ..settings import SearchSettings, check_parameter
 
     if margins is not None:
         ladder = check_ladder(margins, "margins")
@@ -239,6 +242,21 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
     if data is not None:
         data = _as_dataset(data, columns=discover_options.pop("columns", None),
                            missing=discover_options.pop("missing", "drop"))
+        discover_options["missing"] = data.missing
+        test = discover_options.get("test", "fisher-z")
+        if isinstance(test, str):
+            # check every setting once, then build the test once: its set-up (e.g. the
+            # correlation matrix and the collinearity check) is shared by all rungs
+            check_parameter("test", test)
+            SearchSettings(**{k: v for k, v in {**discover_options, **settings_per_rung[0]}
+                              .items() if k in _SETTINGS})
+            if discover_options.get("unrelated") == "equivalence":
+                from ._equivalence import EQUIVALENCE_TESTS
+                if test not in EQUIVALENCE_TESTS:
+                    discover(data, **discover_options, **settings_per_rung[0])  # its refusal
+            discover_options["test"], _ = _test_for(
+                data, test, discover_options.get("max_depth"),
+                discover_options.get("test_options"))
     cache = PValueCache() if cache is None else cache
     cancelled = None if cancel is None else (cancel.is_set if hasattr(cancel, "is_set")
                                             else cancel)

@@ -113,6 +113,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     if isinstance(test, IndependenceTest):
         test_obj = test
         test_name = test.name
+        from ..data import Dataset
+        if isinstance(data, Dataset) and sorted(data.variables) == sorted(test.variables):
+            dataset = data  # the data the test was built from, for the record (a sweep)
     elif isinstance(test, str):
         check_parameter("test", test)
         test_name = test
@@ -138,27 +141,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         dataset = _as_dataset(data, columns=columns, missing=missing)
         if dataset.missing != settings.missing:  # a Dataset carries its own policy
             settings = dataclasses.replace(settings, missing=dataset.missing)
-        from ..data import check_collinearity, check_for_search
-        check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
-        frame = dataset.frame
-        in_name_order = sorted(dataset.variables)
-        if list(dataset.variables) != in_name_order:
-            frame = frame[in_name_order]
-        t_data = time.perf_counter()
-        if test_name == "fisher-z" and not test_options:
-            # the dataset is already hashed: name the data by that hash and the column order
-            test_obj = FisherZ(frame, missing=dataset.missing, fingerprint=dataset.sha256)
-        else:
-            test_obj = make_test(test_name, frame, missing=dataset.missing,
-                                 **(test_options or {}))
-        if test_name == "fisher-z":
-            # reuse the test's correlation matrix for the collinearity check (one matrix)
-            corr = getattr(test_obj, "_corr", None)
-            if corr is not None and list(dataset.variables) != in_name_order:
-                at = {v: i for i, v in enumerate(in_name_order)}
-                order = [at[v] for v in dataset.variables]
-                corr = corr[np.ix_(order, order)]
-            check_collinearity(dataset, correlation=corr)
+        test_obj, t_data = _test_for(dataset, test_name, max_depth, test_options)
     display = tuple(dataset.variables) if dataset is not None else tuple(test_obj.variables)
     equivalence = settings.unrelated == "equivalence"
     if equivalence:
@@ -262,6 +245,33 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                                   "test_setup_s": t0 - t_data,
                                   "skeleton_s": t1 - t0, "orientation_s": t2 - t1,
                                   "total_s": time.perf_counter() - started})
+
+
+def _test_for(dataset, test_name, max_depth, test_options):
+    """Check the data for the test and build it (variables in name order); returns the test
+    and the time the checks ended. A sweep builds its test once through this."""
+    from ..data import check_collinearity, check_for_search
+    check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
+    frame = dataset.frame
+    in_name_order = sorted(dataset.variables)
+    if list(dataset.variables) != in_name_order:
+        frame = frame[in_name_order]
+    t_data = time.perf_counter()
+    if test_name == "fisher-z" and not test_options:
+        # the dataset is already hashed: name the data by that hash and the column order
+        test_obj = FisherZ(frame, missing=dataset.missing, fingerprint=dataset.sha256)
+    else:
+        test_obj = make_test(test_name, frame, missing=dataset.missing,
+                             **(test_options or {}))
+    if test_name == "fisher-z":
+        # reuse the test's correlation matrix for the collinearity check (one matrix)
+        corr = getattr(test_obj, "_corr", None)
+        if corr is not None and list(dataset.variables) != in_name_order:
+            at = {v: i for i, v in enumerate(in_name_order)}
+            order = [at[v] for v in dataset.variables]
+            corr = corr[np.ix_(order, order)]
+        check_collinearity(dataset, correlation=corr)
+    return test_obj, t_data
 
 
 def _as_dataset(data, *, columns, missing):
