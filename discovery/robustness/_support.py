@@ -155,6 +155,38 @@ class SupportResult:
                 "false_edges_bound": self.false_edges_bound,
                 "cautions": list(self.cautions)}
 
+    @classmethod
+    def from_dict(cls, doc: dict, *, source: str = "support") -> "SupportResult":
+        """Rebuild a support record from its JSON document.
+
+        Raises
+        ------
+        ResultFormatError
+            If the document is not an Edgewise support document of a known version.
+        """
+        from ..exceptions import ResultFormatError
+        if not isinstance(doc, dict) or doc.get("format") != "edgewise-support":
+            raise ResultFormatError(f"{source}: 'format' is not 'edgewise-support'")
+        if doc.get("version") != 1:
+            raise ResultFormatError(f"{source}: support version {doc.get('version')!r} is "
+                                    "not supported (this Edgewise reads 1)")
+        try:
+            pairs = tuple(PairSupport(p["a"], p["b"], *(float(p[k]) for k in
+                                                        ("adjacent",) + _ORIENTATIONS))
+                          for p in doc["pairs"])
+            method, cutoff = doc["method"], float(doc["cutoff"])
+            variables = tuple(doc["variables"])
+            mean_edges = float(doc["mean_edges"])
+            return cls(method=method, resamples=int(doc["resamples"]), seed=doc.get("seed"),
+                       cutoff=cutoff, pairs=pairs, consensus=_consensus(pairs, cutoff),
+                       false_edges_bound=_bound(method, cutoff, mean_edges, len(variables)),
+                       mean_edges=mean_edges, variables=variables, rows=int(doc["rows"]),
+                       failed=int(doc.get("failed", 0)), settings=dict(doc.get("settings", {})),
+                       cautions=tuple(doc.get("cautions", SUPPORT_CAUTIONS)))
+        except (KeyError, TypeError, ValueError) as err:
+            raise ResultFormatError(f"{source}: the support document is damaged "
+                                    f"({type(err).__name__}: {err})") from None
+
     def to_json(self, *, indent: int | None = 1) -> str:
         import json
         return json.dumps(self.to_dict(), indent=indent, ensure_ascii=False)

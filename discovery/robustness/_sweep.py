@@ -116,6 +116,40 @@ class SweepResult:
                 "timings": dict(self.timings),
                 "cautions": list(self.cautions)}
 
+    @classmethod
+    def from_dict(cls, doc: dict, *, source: str = "sweep") -> "SweepResult":
+        """Rebuild a sweep from its JSON document.
+
+        Raises
+        ------
+        ResultFormatError
+            If the document is not an Edgewise sweep of a known version, or is damaged.
+        """
+        from ..exceptions import ResultFormatError
+        if not isinstance(doc, dict) or doc.get("format") != "edgewise-sweep":
+            raise ResultFormatError(f"{source}: 'format' is not 'edgewise-sweep'")
+        if doc.get("version") != 1:
+            raise ResultFormatError(f"{source}: sweep version {doc.get('version')!r} is not "
+                                    "supported (this Edgewise reads 1)")
+        try:
+            results = tuple(SearchResult.from_dict(r, source=source) for r in doc["results"])
+            margins = doc.get("margins")
+            edges = tuple(EdgeSurvival(e["a"], e["b"], tuple(map(bool, e["present"])),
+                                       tuple(e["marks"]),
+                                       tuple((float(lo), float(hi)) for lo, hi in e["survival"]))
+                          for e in doc["edges"])
+            record = cls(str(doc["parameter"]), tuple(map(float, doc["alphas"])),
+                         None if margins is None else tuple(map(float, margins)), results,
+                         edges, tuple(doc.get("cautions", SWEEP_CAUTIONS)),
+                         dict(doc.get("timings", {})))
+        except (KeyError, TypeError, ValueError) as err:
+            raise ResultFormatError(f"{source}: the sweep is damaged ({type(err).__name__}: "
+                                    f"{err})") from None
+        if len(record.results) != len(record.ladder) or any(
+                len(e.present) != len(record.ladder) for e in record.edges):
+            raise ResultFormatError(f"{source}: the sweep's rungs do not match its ladder")
+        return record
+
     def to_json(self, *, indent: int | None = 1) -> str:
         import json
         return json.dumps(self.to_dict(), indent=indent, ensure_ascii=False)

@@ -74,8 +74,9 @@ def _cross(painter: QPainter, at: QPointF, color: QColor, scale: float, size: fl
 
 def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: bool = False,
               forbidden_heads=(), hover: bool = False, selected: bool = False,
-              scale: float = 1.0, faded: bool = False, control: QPointF | None = None):
-    """Draw one mark from a to b.
+              scale: float = 1.0, faded: bool = False, control: QPointF | None = None,
+              weight: float = 1.0):
+    """Draw one mark from a to b (``weight`` scales the line width, e.g. by support).
 
     ``kind`` is ``directed`` (a → b), ``undirected``, ``contested``, ``forbidden`` (overlay),
     ``pending-lock`` (a locked pair the current diagram does not have yet) or ``locked``
@@ -86,10 +87,10 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: b
     if control is not None:
         _draw_curved(painter, a, b, control, kind, locked=locked,
                      forbidden_heads=forbidden_heads, hover=hover, selected=selected,
-                     scale=scale, faded=faded)
+                     scale=scale, faded=faded, weight=weight)
         return
     ux, uy, length = _unit(a, b)
-    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale * weight
     painter.save()
     painter.setRenderHint(QPainter.Antialiasing)
     if faded:
@@ -133,10 +134,10 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, locked: b
 
 
 def _draw_curved(painter, a, b, c, kind, *, locked, forbidden_heads, hover, selected, scale,
-                 faded):
+                 faded, weight=1.0):
     path = QPainterPath(a)
     path.quadTo(c, b)
-    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale * weight
     color = style.CONTESTED if kind == "contested" else style.SLATE
     painter.save()
     painter.setRenderHint(QPainter.Antialiasing)
@@ -411,7 +412,8 @@ class EdgeItem(QGraphicsItem):
         draw_edge(painter, self.p1, self.p2, self.kind, locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
                   hover=self.hover, selected=self.selected, faded=self.faded,
-                  control=self.control)
+                  control=self.control, weight=support_weight(self.canvas.session,
+                                                              self.source, self.target))
 
     def hoverEnterEvent(self, event):
         self.hover = True
@@ -427,6 +429,16 @@ class EdgeItem(QGraphicsItem):
             event.accept()
         else:
             super().mousePressEvent(event)
+
+
+def support_weight(session, a: str, b: str) -> float:
+    """Line-width factor from resampling support: 1 without a support run; else from 0.5
+    (never adjacent in a resample) to 2 (adjacent in every one)."""
+    record = getattr(session, "support", None)
+    if record is None:
+        return 1.0
+    pair = record.pair(a, b)
+    return 0.5 + 1.5 * (pair.adjacent if pair is not None else 0.0)
 
 
 class OverlayItem(QGraphicsItem):
@@ -595,6 +607,7 @@ class GraphCanvas(QGraphicsView):
         ev.selection.connect(self._on_selection)
         ev.stale.connect(self._on_banner)
         ev.status.connect(self._on_banner)
+        ev.support.connect(self._on_support)
         self._rebuild()
 
     def node_arrays(self):
@@ -620,6 +633,10 @@ class GraphCanvas(QGraphicsView):
     # -- building ----------------------------------------------------------------------------
     def _on_structure(self, _=None):
         self._rebuild()
+
+    def _on_support(self, _=None):
+        """Edge widths follow resampling support: repaint."""
+        self.viewport().update()
 
     def _rebuild(self):
         s = self.session

@@ -25,7 +25,7 @@ from discovery.settings import PARAMETERS
 
 from .. import _session
 from . import export as _export
-from . import style
+from . import robustness_actions, style
 from .canvas import GraphCanvas
 from .inspector import Inspector
 from .panels import StagesEditor, VariablesPanel
@@ -125,6 +125,7 @@ class MainWindow(QMainWindow):
         self._build_docks()
         self._build_menus()
         self._build_status()
+        robustness_actions.install(self)  # sweep, resample, unrelated rule; two panels
 
         self._auto_timer = QTimer(self)
         self._auto_timer.setSingleShot(True)
