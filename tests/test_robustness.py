@@ -357,3 +357,20 @@ def test_bad_command_input_is_one_line_and_no_file(frame, tmp_path, capsys, argv
     import re
     assert re.search(message, err), err
     assert not target.exists() and list(tmp_path.iterdir()) == [data]
+
+
+def test_sorted_cache_answers_as_the_dict_cache(frame):
+    from discovery.independence import PValueCache
+    from discovery.robustness._cache import SortedPValueCache
+    test = FisherZ(frame)
+    rng = np.random.default_rng(3)
+    plain, fast = PValueCache(), SortedPValueCache()
+    for _ in range(10):  # repeated, overlapping batches: runs get merged on the way
+        rows = np.sort(rng.choice(6, size=(40, 3), replace=True), axis=1)
+        rows = rows[(rows[:, 0] < rows[:, 1]) & (rows[:, 1] < rows[:, 2])]
+        idx = rows[:, [0, 2, 1]]  # x < y, one conditioning variable
+        idx = np.column_stack([np.minimum(idx[:, 0], idx[:, 1]),
+                               np.maximum(idx[:, 0], idx[:, 1]), idx[:, 2]])
+        assert np.array_equal(plain.pvalues_array(test, idx), fast.pvalues_array(test, idx))
+        assert (plain.hits, plain.misses) == (fast.hits, fast.misses)
+    assert len(fast) == len(plain)
