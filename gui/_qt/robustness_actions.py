@@ -26,8 +26,14 @@ def install(window) -> None:
     to ``window``."""
     s = window.session
     tb = window.toolbar
-    before = next((a for a in tb.actions() if tb.widgetForAction(a) is window.export_button),
-                  None)
+    actions = tb.actions()
+
+    def after(widget):
+        """The toolbar action that follows ``widget``'s (new items go before it)."""
+        at = next(i for i, a in enumerate(actions) if tb.widgetForAction(a) is widget)
+        return actions[at + 1] if at + 1 < len(actions) else None
+
+    before = next((a for a in actions if a is window.act_auto), None)  # after the settings
 
     def insert(widget_or_action):
         if isinstance(widget_or_action, QAction):
@@ -52,6 +58,7 @@ def install(window) -> None:
     window.margin_box.setPrefix("δ ")
     window.margin_box.setToolTip(f"{margin.help}: {margin.describe()}")
     insert(window.margin_box)
+    tb.insertSeparator(before)
 
     def push_rule(_=None):
         s.set_unrelated(window.unrelated_choice.currentData(),
@@ -61,7 +68,6 @@ def install(window) -> None:
     window.margin_box.valueChanged.connect(
         lambda _: push_rule() if window.unrelated_choice.currentData() == "equivalence"
         else None)
-    tb.insertSeparator(before)
 
     window.act_sweep = window._action(
         "actionSweep", "Sweep", lambda: sweep(window), "Ctrl+Shift+W",
@@ -70,11 +76,11 @@ def install(window) -> None:
     window.act_resample = window._action(
         "actionResample", "Resample", lambda: resample(window), "Ctrl+Shift+B",
         "Search resampled copies of the data and show each edge's support")
+    before = after(window.stop_button)  # beside Run and Stop
     for act, name in ((window.act_sweep, "sweepButton"),
                       (window.act_resample, "resampleButton")):
         insert(act)
         tb.widgetForAction(act).setObjectName(name)
-    tb.insertSeparator(before)
 
     window.survival = SurvivalPanel(s)
     window.survival.sweep_requested.connect(lambda: sweep(window))
@@ -138,11 +144,20 @@ class _Views(QObject):
 
     def on_sweep(self, record):
         if record is not None:
-            self.window.survival_dock.raise_()
+            self._show(self.window.survival_dock, len(record.edges))
 
     def on_support(self, record):
         if record is not None:
-            self.window.support_dock.raise_()
+            self._show(self.window.support_dock, len(record.pairs))
+
+    def _show(self, dock, rows):
+        """Bring the panel to the front, tall enough for its rows (within reason)."""
+        dock.show()
+        dock.raise_()
+        w = self.window
+        want = min(max(200, 90 + 20 * rows), w.height() // 3)
+        if dock.height() < want:
+            w.resizeDocks([dock], [want], Qt.Vertical)
 
 
 def sweep(window) -> bool:

@@ -165,8 +165,10 @@ class SupportPanel(QWidget):
         scroll.setWidgetResizable(True)
         scroll.setWidget(self.chart)
         layout.addWidget(scroll, 1)
-        caution = QLabel("Support measures stability under sampling noise, not causation: a "
-                         "hidden common cause gives a stable wrong edge.")
+        caution = QLabel("Bars: dark = left → right, grey = left ← right, pale = undirected, "
+                         "red = contested; the teal line is the cut-off. Support measures "
+                         "stability under sampling noise, not causation: a hidden common "
+                         "cause gives a stable wrong edge.")
         caution.setObjectName("supportCaution")
         caution.setWordWrap(True)
         caution.setStyleSheet("color: #8A8F94; font-size: 11px;")
