@@ -25,9 +25,9 @@ variables with correlation δ, so that one δ means "as weak as a correlation of
 tests.
 
 Worked example: with n = 200,000 rows and no conditioning, r = 0.02 gives z = 8.9 and a
-two-sided p of about 5e-19: "significant" at any usual α. With δ = 0.05, ``p⁺ = Φ((0.02 −
-0.05004) · 447.2) ≈ Φ(−13.4) ≈ 3e-41``: the data show the correlation lies below 0.05, and the
-equivalence rule calls the pair unrelated.
+two-sided p of 3.7e-19: "significant" at any usual α. With δ = 0.05, ``p⁺ = Φ((atanh 0.02 −
+atanh 0.05) · sqrt(199,997)) = Φ(−13.4) = 1.9e-41`` (and ``p⁻`` is far smaller): the data
+show the correlation lies within ±0.05, and the equivalence rule calls the pair unrelated.
 
 A pair that neither rule can decide (the significance test does not reject independence, and
 the equivalence test does not show the effect within the margin) is *undecided*: the data are
