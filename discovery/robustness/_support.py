@@ -356,7 +356,9 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
     # validate the search options once, before any work is sent out
     check = {k: discover_options[k] for k in ("alpha", "max_depth", "collider_rule",
                                                "unrelated", "margin") if k in discover_options}
-    SearchSettings(**check)
+    effective = SearchSettings(test=discover_options.get("test", "fisher-z"),
+                               test_options=dict(discover_options.get("test_options") or {}),
+                               **check)
     dataset = _as_dataset(data, columns=discover_options.pop("columns", None),
                           missing=discover_options.pop("missing", "drop"))
     frame = dataset.frame
@@ -406,8 +408,10 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
         key=lambda p: (-p.adjacent, p.a, p.b)))
     mean_edges = float(np.mean([len(e) for e in finished]))
     variables = tuple(dataset.variables)
-    settings = {k: (v.to_dict() if hasattr(v, "to_dict") else v)
-                for k, v in options.items()}
+    settings = effective.to_dict()
+    settings["missing"] = dataset.missing
+    if options.get("knowledge") is not None:
+        settings["knowledge"] = options["knowledge"].to_dict()
     return SupportResult(method=method, resamples=total, seed=recorded_seed, cutoff=cutoff,
                          pairs=pairs, consensus=_consensus(pairs, cutoff),
                          false_edges_bound=_bound(method, cutoff, mean_edges, len(variables)),
