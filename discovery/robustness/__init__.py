@@ -9,10 +9,10 @@
   one-sided tests show its effect lies within ±δ (:mod:`._equivalence`).
 
 Each analysis returns an immutable record with ``to_dict()``, ``to_csv()``, ``as_text()`` and
-``figure()``; they carry the search's assumptions and cautions.
+``figure()`` (matplotlib, imported only when a figure is drawn); they carry the search's
+assumptions and cautions.
 """
 
-from ._charts import save_figure, support_figure, sweep_figure
 from ._equivalence import (EQUIVALENCE_TESTS, EquivalenceTest, fisher_z_equivalence_pvalue,
                            g_squared_equivalence_pvalue)
 from ._support import SUPPORT_METHODS, PairSupport, SupportResult, support
@@ -21,4 +21,4 @@ from ._sweep import DEFAULT_ALPHAS, EdgeSurvival, SweepResult, sweep
 __all__ = ["sweep", "SweepResult", "EdgeSurvival", "DEFAULT_ALPHAS",
            "support", "SupportResult", "PairSupport", "SUPPORT_METHODS",
            "EquivalenceTest", "fisher_z_equivalence_pvalue", "g_squared_equivalence_pvalue",
-           "EQUIVALENCE_TESTS", "sweep_figure", "support_figure", "save_figure"]
+           "EQUIVALENCE_TESTS"]

@@ -294,7 +294,11 @@ def _executor(jobs, cluster):
         raise SettingsError(f"cluster={cluster!r}: this installation's executor has no "
                             "cluster back-end yet; run without a cluster (use jobs= for "
                             "local processes)")
-    return executors.make_executor(jobs, cluster=cluster)
+    try:
+        return executors.make_executor(jobs, cluster=cluster)
+    except (OSError, TimeoutError) as err:  # the back-end's own errors pass unchanged
+        raise SettingsError(f"cluster={cluster!r}: cannot reach the scheduler ({err}); check "
+                            "the address and that the scheduler is running") from None
 
 
 def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,

@@ -186,8 +186,8 @@ class SweepResult:
         return self.as_text()
 
     def figure(self, *, current: float | None = None):
-        """A matplotlib Figure: pairs against the ladder, marks shown (see
-        :func:`discovery.robustness.draw_sweep`)."""
+        """A matplotlib Figure: pairs against the ladder, marks shown, ``current`` (e.g. the
+        α in use) as a teal line."""
         from ._charts import sweep_figure
         return sweep_figure(self, current=current)
 
