@@ -374,3 +374,34 @@ def test_sorted_cache_answers_as_the_dict_cache(frame):
         assert np.array_equal(plain.pvalues_array(test, idx), fast.pvalues_array(test, idx))
         assert (plain.hits, plain.misses) == (fast.hits, fast.misses)
     assert len(fast) == len(plain)
+
+
+def test_equivalence_wrapper_refuses_other_tests(frame):
+    from discovery.independence import DSeparationOracle
+    with pytest.raises(SettingsError, match="no effect size to bound"):
+        EquivalenceTest(DSeparationOracle(DAG), 0.1)
+
+
+def test_support_refuses_data_it_cannot_resample():
+    from discovery import DataValidationError
+    tiny = pd.DataFrame({"a": [0.1, 0.5, 0.2], "b": [1.0, 0.3, 0.7]})
+    with pytest.raises(DataValidationError, match="at least 4 rows"):
+        support(tiny, resamples=2, method="subsample")
+
+
+def test_documents_round_trip_and_damaged_ones_are_refused(frame):
+    from discovery import ResultFormatError
+    s = sweep(frame, alphas=[0.01, 0.1])
+    assert SweepResult.from_dict(json.loads(s.to_json())).to_dict() == s.to_dict()
+    r = support(frame, resamples=3, seed=1)
+    assert SupportResult.from_dict(json.loads(r.to_json())).to_dict() == r.to_dict()
+    with pytest.raises(ResultFormatError, match="'format' is not 'edgewise-sweep'"):
+        SweepResult.from_dict({"format": "edgewise-support"})
+    broken = s.to_dict()
+    broken["edges"][0]["present"] = [True]
+    with pytest.raises(ResultFormatError, match="do not match its ladder"):
+        SweepResult.from_dict(broken)
+    with pytest.raises(ResultFormatError, match="version"):
+        SupportResult.from_dict({**r.to_dict(), "version": 9})
+    with pytest.raises(ResultFormatError, match="damaged"):
+        SupportResult.from_dict({**r.to_dict(), "pairs": [{"a": "x"}]})

@@ -43,9 +43,9 @@ class _Runs:
     def add(self, keys: np.ndarray, values: np.ndarray) -> None:
         if not len(keys):
             return
-        order = np.argsort(keys, kind="stable")
-        self.keys.append(keys[order])
-        self.values.append(values[order])
+        keys, first = np.unique(keys, return_index=True)  # sorted, a repeated row once
+        self.keys.append(keys)
+        self.values.append(values[first])
         if len(self.keys) > _MAX_RUNS:
             merged = np.concatenate(self.keys)
             order = np.argsort(merged, kind="stable")
@@ -93,8 +93,9 @@ class SortedPValueCache(PValueCache):
         return values
 
     def __len__(self) -> int:
+        others = super().__len__()  # takes the lock itself (not re-entrant)
         with self._lock:
-            return super().__len__() + sum(len(r) for r in self._runs.values())
+            return others + sum(len(r) for r in self._runs.values())
 
     def clear(self) -> None:
         with self._lock:
