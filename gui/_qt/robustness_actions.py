@@ -145,10 +145,17 @@ class _Views(QObject):
     def on_sweep(self, record):
         if record is not None:
             self._show(self.window.survival_dock, len(record.edges))
+            whole = sum(all(e.present) for e in record.edges)
+            self.window.status_text.setText(
+                f"Sweep done: {len(record.ladder)} rungs; {whole} of {len(record.edges)} "
+                "pairs present at every rung")
 
     def on_support(self, record):
         if record is not None:
             self._show(self.window.support_dock, len(record.pairs))
+            self.window.status_text.setText(
+                f"Resampling done: {record.resamples} {record.method} resamples; "
+                f"{len(record.consensus)} edges with support ≥ {record.cutoff:g}")
 
     def _show(self, dock, rows):
         """Bring the panel to the front, tall enough for its rows (within reason)."""
