@@ -405,3 +405,27 @@ def test_documents_round_trip_and_damaged_ones_are_refused(frame):
         SupportResult.from_dict({**r.to_dict(), "version": 9})
     with pytest.raises(ResultFormatError, match="damaged"):
         SupportResult.from_dict({**r.to_dict(), "pairs": [{"a": "x"}]})
+
+
+def test_sorted_cache_wide_rows_are_exact():
+    # 300 variables need 9 bits each: a row with 6 conditioning variables does not pack
+    # into 64 bits, and is keyed by a hash checked against the stored row
+    from discovery.robustness._cache import SortedPValueCache
+
+    class Echo:  # a stand-in test whose "p-value" names its row
+        variables = tuple(f"v{i}" for i in range(300))
+
+        def settings_key(self):
+            return ("echo",)
+
+        def pvalues_array(self, idx, executor=None):
+            return (idx * np.arange(1, idx.shape[1] + 1)).sum(axis=1) / 1e6
+
+    rng = np.random.default_rng(0)
+    cache, test = SortedPValueCache(), Echo()
+    rows = np.sort(rng.choice(300, size=(500, 8)), axis=1)
+    first = cache.pvalues_array(test, rows)
+    again = cache.pvalues_array(test, rows[::-1])
+    assert np.array_equal(first, test.pvalues_array(rows))
+    assert np.array_equal(again, test.pvalues_array(rows[::-1]))
+    assert cache.hits == 500 and cache.misses == 500
