@@ -188,7 +188,7 @@ def robustness_benchmarks(*, quick: bool = False, progress=print, repeat: int = 
     sweep_peak = tracemalloc.get_traced_memory()[1]
     tracemalloc.stop()
 
-    sp, sdeg, sn, b = (10, 2, 500, 20) if quick else (20, 2, 2000, 100)
+    sp, sdeg, sn, b = (10, 2, 500, 20) if quick else (40, 2, 5000, 100)
     small = prepare_frame(sample_linear_gaussian(random_dag(sp, expected_degree=sdeg, rng=rng),
                                                  sn, rng=rng))
     progress(f"support benchmark: {b} bootstrap resamples of {sp} variables, {sn} rows")

@@ -262,8 +262,18 @@ def _consensus(pairs, cutoff) -> tuple[Edge, ...]:
 def _run_resamples(task):
     """Search each resample of a chunk; return ``(index, [(a, b, orientation)] or None)``.
     Module-level so that worker processes can run it."""
+    import multiprocessing
+
+    from ..executor import blas_threads
     from ..search import discover
     frame, method, options, streams = task
+    # in a worker process, one BLAS thread: processes already fill the cores, and spinning
+    # BLAS threads of two processes on two cores slow both down
+    with blas_threads(1 if multiprocessing.parent_process() is not None else None):
+        return _search_each(frame, method, options, streams, discover)
+
+
+def _search_each(frame, method, options, streams, discover):
     n = len(frame)
     out = []
     for index, stream in streams:
