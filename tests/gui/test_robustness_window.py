@@ -158,3 +158,18 @@ def test_a_sweep_can_be_stopped(qtbot, window, tmp_path):
     assert window.stop()
     _wait(qtbot, window)
     assert window.session.status == "stopped" and window.session.sweep is None
+
+
+def test_inspector_reads_equivalence_p_values_the_right_way(qtbot, window, collider_csv):
+    assert window.open_path(collider_csv)
+    window.session.set_unrelated("equivalence", 0.1)
+    assert window.run()
+    _wait(qtbot, window)
+    result = window.session.result
+    removed = next(r for r in result.removed if r.by == "test")
+    window.session.select_pair(removed.a, removed.b)
+    text = window.inspector.body.text()
+    assert "shown unrelated" in text and "within ±0.1" in text
+    verdicts = {window.inspector.tests.item(i, 2).text()
+                for i in range(window.inspector.tests.rowCount())}
+    assert "within margin" in verdicts
