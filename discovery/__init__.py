@@ -38,9 +38,10 @@ from .search import discover
 from .effects import (ControlSetError, ControlSets, EffectRange, control_sets, effect_range,
                       estimate_effect)
 from .settings import PARAMETERS, SearchSettings
+from .robustness import SupportResult, SweepResult, support, sweep
 
 __all__ = [
-    "discover", "read_table", "prepare_frame", "Dataset", "column_kind", "check_for_search",
+    "discover", "sweep", "support", "SweepResult", "SupportResult", "read_table", "prepare_frame", "Dataset", "column_kind", "check_for_search",
     "Knowledge", "read_knowledge", "write_knowledge",
     "SearchResult", "Edge", "Removal", "load_result", "ASSUMPTIONS",
     "SearchSettings", "PARAMETERS",

@@ -100,6 +100,11 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--explain", action="append", default=[], metavar="A,B",
                    help="after the search, print the evidence for the pair A,B "
                         "(repeatable)")
+    from .settings import PARAMETERS, UNRELATED_RULES
+    d.add_argument("--unrelated", default="significance", choices=UNRELATED_RULES,
+                   help=PARAMETERS["unrelated"].help + " (default: significance)")
+    d.add_argument("--margin", type=float, default=None, metavar="DELTA",
+                   help=PARAMETERS["margin"].help)
     d.add_argument("--test-option", action="append", default=[], metavar="NAME=VALUE",
                    dest="test_option",
                    help="an option of the chosen test, repeatable (e.g. --test-option "
@@ -165,6 +170,8 @@ def _build_parser() -> argparse.ArgumentParser:
     cli_exchange.register(sub)
     report_cli.register(sub)
     register_controls(sub)
+    from . import cli_robustness
+    cli_robustness.register(sub)
     return parser
 
 
@@ -181,9 +188,11 @@ def main(argv=None) -> int:
         parser.print_help()
         return 2
     from . import cli_explain
+    from .cli_robustness import HANDLERS as robustness_handlers
     handler = getattr(args, "handler", None) or {
         "discover": _cmd_discover, "simulate": _cmd_simulate, "bench": _cmd_bench,
-        "gui": _cmd_gui, "explain": cli_explain.run, "controls": _cmd_controls}[args.command]
+        "gui": _cmd_gui, "explain": cli_explain.run, "controls": _cmd_controls,
+        **robustness_handlers}[args.command]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # notes reach the user through the result
@@ -355,7 +364,8 @@ def _cmd_discover(args) -> int:
                               collider_rule=args.collider_rule, executor=executor,
                               progress=progress, test_options=test_options or None,
                               hidden_causes=args.hidden_causes,
-                              pds_budget=_pds_budget(args.pds_budget))
+                              pds_budget=_pds_budget(args.pds_budget),
+                              unrelated=args.unrelated, margin=args.margin)
         finally:
             progress.close()
     from .drawing import draw_result

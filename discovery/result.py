@@ -516,6 +516,9 @@ class SearchResult:
     notes : tuple of str
     counts, timings, data, software : mappings
     seed : int or None
+    undecided : tuple of (str, str)
+        With the equivalence rule: adjacent pairs the data could neither show related nor
+        show within the margin.
     """
 
     variables: tuple[str, ...]
@@ -532,8 +535,10 @@ class SearchResult:
     data: Mapping = field(default_factory=dict)
     software: Mapping = field(default_factory=dict)
     seed: int | None = None
+    undecided: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self):
+        object.__setattr__(self, "undecided", tuple(tuple(p) for p in self.undecided))
         for name in ("counts", "timings", "data", "software"):
             object.__setattr__(self, name, _freeze(getattr(self, name)))
         if isinstance(self.triples, LazyRecords):  # frozen when first read
@@ -635,6 +640,7 @@ class SearchResult:
             "data": dict(self.data),
             "software": dict(self.software),
             "seed": self.seed,
+            "undecided": [list(p) for p in self.undecided],
             "assumptions": list(self.assumptions()),
         }
 
@@ -784,7 +790,10 @@ def _checked_extras(doc: dict, known: set, fail) -> dict:
             "counts": table("counts", _is_count),
             "timings": table("timings", _is_number),
             "data": table("data"), "software": table("software", lambda v: isinstance(v, str)),
-            "seed": seed}
+            "seed": seed,
+            "undecided": tuple(tuple(p) for p in listed(
+                "undecided", lambda p: isinstance(p, list) and len(p) == 2
+                and set(p) <= known, "pairs of known variables"))}
 
 
 def _test_row(t, known, fail) -> tuple:

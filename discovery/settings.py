@@ -14,10 +14,11 @@ from numbers import Integral, Real
 from .exceptions import SettingsError
 
 __all__ = ["Interval", "Choice", "Flag", "PARAMETERS", "SearchSettings", "COLLIDER_RULES",
-           "MISSING_POLICIES"]
+           "MISSING_POLICIES", "UNRELATED_RULES"]
 
 COLLIDER_RULES = ("standard", "conservative", "majority")
 MISSING_POLICIES = ("drop", "test-wise")
+UNRELATED_RULES = ("significance", "equivalence")
 
 
 @dataclass(frozen=True)
@@ -100,6 +101,12 @@ PARAMETERS = {
     "missing": Choice(MISSING_POLICIES, "drop incomplete rows, or delete test-wise"),
     "hidden_causes": Flag("allow hidden common causes of the measured variables (FCI: the "
                           "result is a partial ancestral graph with circle marks)"),
+    "unrelated": Choice(UNRELATED_RULES,
+                        "what makes a pair unrelated: 'significance' (p > alpha) or "
+                        "'equivalence' (two one-sided tests show the effect within the margin)"),
+    "margin": Interval(float, 0.0, 1.0, "neither", allow_none=True,
+                       help="equivalence margin: the largest partial correlation still "
+                            "called unrelated (with unrelated='equivalence')"),
 }
 
 
@@ -128,6 +135,8 @@ class SearchSettings:
     missing: str = "drop"
     test_options: tuple = ()  # (name, value) pairs given to the test, sorted by name
     hidden_causes: bool = False
+    unrelated: str = "significance"
+    margin: float | None = None
 
     def __post_init__(self):
         options = self.test_options
@@ -144,8 +153,15 @@ class SearchSettings:
         if not isinstance(self.test, str) or not self.test:
             raise SettingsError(f"The 'test' parameter must be a test name. Got "
                                 f"{self.test!r} instead.")
-        for name in ("alpha", "max_depth", "collider_rule", "missing", "hidden_causes"):
+        for name in ("alpha", "max_depth", "collider_rule", "missing", "hidden_causes",
+                     "unrelated", "margin"):
             check_parameter(name, getattr(self, name))
+        if self.unrelated == "equivalence" and self.margin is None:
+            raise SettingsError("The 'margin' parameter of discover must be a float in (0, 1) "
+                                "when unrelated='equivalence' (e.g. margin=0.05). Got None "
+                                "instead.")
+        if self.margin is not None:
+            object.__setattr__(self, "margin", float(self.margin))
         object.__setattr__(self, "alpha", float(self.alpha))
         if self.max_depth is not None:
             object.__setattr__(self, "max_depth", int(self.max_depth))
@@ -158,5 +174,7 @@ class SearchSettings:
     @classmethod
     def from_dict(cls, values: dict) -> "SearchSettings":
         known = {k: values[k] for k in ("test", "alpha", "max_depth", "collider_rule",
-                                        "missing", "test_options", "hidden_causes") if k in values}
+                                        "missing", "test_options", "hidden_causes",
+                                        "unrelated", "margin")
+                 if k in values}
         return cls(**known)

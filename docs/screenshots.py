@@ -126,6 +126,18 @@ def main() -> int:
     shot(w, "12-controls-not-identifiable.png")
     s.update({"treatment": None, "outcome": None})
     w.inspector_dock.raise_()
+    # which edges survive: a sweep over α and 40 bootstrap resamples, each in its panel
+    w.runner.start_analysis("sweep")
+    wait(app, lambda: w.session.status == "done")
+    s.select_pair("humidity", "fungal_spots")
+    pump(app)
+    shot(w, "11-survival.png")
+    w.support_panel.resamples.setValue(40)
+    w.runner.start_analysis("support", **w.support_panel.options())
+    wait(app, lambda: w.session.status == "done")
+    pump(app)
+    shot(w, "12-support.png")
+    s.update({"sweep": None, "support": None})
 
     s.clear_selection()
     s.forbid("air_temp", "humidity")

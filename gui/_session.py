@@ -49,7 +49,7 @@ from ._events import EventGroup
 from ._words import window_words
 from ._notifications import NotificationChannel
 
-__all__ = ["Session", "SearchJob", "FORMAT", "VERSION", "STATUSES", "FIELDS",
+__all__ = ["Session", "SearchJob", "AnalysisJob", "ANALYSES", "FORMAT", "VERSION", "STATUSES", "FIELDS",
            "restrict_knowledge"]
 
 FORMAT = "edgewise-session"
@@ -85,14 +85,16 @@ FIELDS = {
     "controls": None,           # ControlSets | None: the answer for the result, kept current
     "effects": None,            # EffectRange | None: the effect range, when data are open
     "controls_note": "",        # why there is no answer or no effect range (one line), or ""
+    "sweep": None,              # discovery.SweepResult | None: the last survival sweep
+    "support": None,            # discovery.SupportResult | None: the last resampling run
 }
 
-_IDENTITY_FIELDS = {"dataset", "result", "controls", "effects"}
+_IDENTITY_FIELDS = {"dataset", "result", "controls", "effects", "sweep", "support"}
 #: Fields whose change recomputes the control-set answer.
 _CONTROL_INPUTS = {"result", "dataset", "treatment", "outcome", "planned"}
 _INPUT_FIELDS = {"settings", "knowledge", "included"}
 _SAVED_FIELDS = {"settings", "knowledge", "included", "result", "positions", "overlay",
-                 "data_path", "treatment", "outcome", "planned"}
+                 "data_path", "treatment", "outcome", "planned", "sweep", "support"}
 _LOG_LINES = 2000
 _STOP_CHUNK = 2048  # a batch is split so that a stop is seen within one chunk
 
@@ -179,7 +181,8 @@ class SearchJob:
                 max_depth=self.settings.max_depth, knowledge=knowledge,
                 collider_rule=self.settings.collider_rule, missing=self.settings.missing,
                 cache=_StoppableCache(self.cache, self.cancel), progress=report,
-                cancel=self.cancel, hidden_causes=self.settings.hidden_causes)
+                cancel=self.cancel, hidden_causes=self.settings.hidden_causes,
+                unrelated=self.settings.unrelated, margin=self.settings.margin)
         if not self.cancel.is_set():
             self.extras["positions"] = _layout.arrange(
                 self.dataset.variables, [(e.source, e.target) for e in result.edges],
@@ -193,6 +196,83 @@ class SearchJob:
             if text not in seen:
                 seen.append(text)
         return result, seen
+
+
+#: The analyses a session runs besides the search (see :class:`AnalysisJob`).
+ANALYSES = ("sweep", "support")
+
+
+@dataclasses.dataclass(frozen=True)
+class AnalysisJob:
+    """A frozen snapshot for a survival sweep or a resampling run; :meth:`run` does the
+    work (any thread), like :class:`SearchJob`, and the session takes the record back.
+
+    ``options`` are the analysis's own: ``alphas`` or ``margins`` for a sweep; ``resamples``,
+    ``method``, ``seed`` and ``cutoff`` for support.
+    """
+
+    kind: str
+    run_id: int
+    dataset: object
+    included: tuple
+    settings: SearchSettings
+    knowledge: Knowledge
+    cache: PValueCache
+    options: Mapping = dataclasses.field(default_factory=dict)
+    cancel: threading.Event = dataclasses.field(default_factory=threading.Event)
+    started: float = dataclasses.field(default_factory=time.perf_counter)
+    extras: dict = dataclasses.field(default_factory=dict)
+
+    def run(self, progress: Callable | None = None):
+        """Run the analysis; return its record and the warnings raised.
+
+        Raises
+        ------
+        DiscoveryError
+            Data, settings or options that cannot be used (one-line message).
+        SearchCancelled
+            :attr:`cancel` was set.
+        """
+        from discovery.data import prepare_frame
+        from discovery.robustness import support, sweep
+
+        def report(info):
+            # only the analysis's own steps (rungs, resamples) drive the progress bar
+            if progress is not None and info.get("phase") == self.kind:
+                info = dict(info)
+                info["elapsed"] = time.perf_counter() - self.started
+                progress(info)
+
+        s = self.settings
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            ds = self.dataset
+            prepared = prepare_frame(ds.frame, columns=list(self.included),
+                                     missing=s.missing, source=ds.source)
+            prepared = dataclasses.replace(prepared, sha256=ds.sha256, rows_read=ds.rows_read)
+            options = dict(test=s.test, max_depth=s.max_depth, collider_rule=s.collider_rule,
+                           knowledge=restrict_knowledge(self.knowledge, prepared.variables),
+                           progress=report, cancel=self.cancel)
+            if s.unrelated != "significance":
+                options.update(unrelated=s.unrelated, margin=s.margin)
+            extra = dict(self.options)
+            if self.kind == "sweep":
+                if extra.get("margins") is not None:
+                    options.pop("unrelated", None)
+                    options.pop("margin", None)
+                    options["alpha"] = s.alpha
+                record = sweep(prepared, alphas=extra.get("alphas"),
+                               margins=extra.get("margins"), cache=self.cache, **options)
+            else:
+                record = support(prepared, resamples=extra.get("resamples", 100),
+                                 method=extra.get("method", "bootstrap"),
+                                 seed=extra.get("seed"), cutoff=extra.get("cutoff", 0.5),
+                                 alpha=s.alpha, **options)
+        seen = []
+        for w in caught:
+            if str(w.message) not in seen:
+                seen.append(str(w.message))
+        return record, seen
 
 
 class _StoppableCache:
@@ -343,6 +423,12 @@ class Session:
             raise TypeError("knowledge must be a discovery.Knowledge")
         if name == "result" and value is not None and not isinstance(value, SearchResult):
             raise TypeError("result must be a discovery.SearchResult or None")
+        if name in ("sweep", "support") and value is not None:
+            from discovery.robustness import SupportResult, SweepResult
+            if not isinstance(value, SweepResult if name == "sweep" else SupportResult):
+                raise TypeError(f"{name} must be a discovery."
+                                f"{'SweepResult' if name == 'sweep' else 'SupportResult'} "
+                                "or None")
         if name in ("included", "selection", "log"):
             value = tuple(value)
         if name == "planned":
@@ -429,6 +515,7 @@ class Session:
         self.update({
             "data_path": str(Path(path).resolve()), "dataset": dataset,
             "included": dataset.variables, "knowledge": knowledge, "result": None,
+            "sweep": None, "support": None,
             "status": "idle", "progress": None, "selection": (),
             "positions": _layout.arrange(dataset.variables, (), knowledge.stages),
             "session_path": None, "layouts": self.layouts + 1,
@@ -763,6 +850,86 @@ class Session:
                         f"collider rule {s.collider_rule}, missing {s.missing}")
         return job
 
+    def start_analysis(self, kind: str, **options) -> AnalysisJob | None:
+        """Snapshot the inputs for a sweep (``kind="sweep"``, options ``alphas`` or
+        ``margins``) or a resampling run (``kind="support"``, options ``resamples``,
+        ``method``, ``seed``, ``cutoff``) and mark the session running; None (with a
+        message) when it cannot start. The job goes through the same progress, Stop and
+        finish path as a search."""
+        if kind not in ANALYSES:
+            raise ValueError(f"kind must be one of {ANALYSES}; got {kind!r}")
+        title = "Sweep" if kind == "sweep" else "Resample"
+        if self.status in ("running", "stopping"):
+            self.notifications.info("a run is already going; stop it first", title=title)
+            return None
+        if self.dataset is None:
+            self._error("no data open; open a CSV, TSV or Parquet file first (File → Open "
+                        "data)", title)
+            return None
+        if len(self.included) < 2:
+            self._error("at least 2 included variables are needed; tick more in the "
+                        "Variables panel", title)
+            return None
+        object.__setattr__(self, "run_id", self.run_id + 1)
+        job = AnalysisJob(kind, self.run_id, self.dataset, tuple(self.included),
+                          self.settings, self.knowledge, self.cache, dict(options))
+        object.__setattr__(self, "_job", job)
+        self.update({"status": "running",
+                     "progress": {"phase": kind, "level": 0, "done": 0, "planned": 0,
+                                  "elapsed": 0.0}})
+        what = ("survival sweep" if kind == "sweep"
+                else f"{options.get('resamples', 100)} {options.get('method', 'bootstrap')} "
+                     "resamples")
+        self.append_log(f"run {job.run_id}: {what} over {len(job.included)} variables")
+        return job
+
+    def _finish_analysis(self, job: AnalysisJob, record, warnings_seen) -> bool:
+        object.__setattr__(self, "_job", None)
+        if job.cancel.is_set():
+            self._stopped(job)
+            return False
+        self.update({job.kind: record, "status": "done", "progress": None})
+        elapsed = time.perf_counter() - job.started
+        if job.kind == "sweep":
+            self.append_log(f"run {job.run_id} done in {elapsed:.2f} s: sweep of "
+                            f"{len(record.ladder)} rungs, {len(record.edges)} pairs adjacent "
+                            "at some rung")
+        else:
+            self.append_log(f"run {job.run_id} done in {elapsed:.2f} s: {record.resamples} "
+                            f"resamples (seed {record.seed}), {len(record.consensus)} edges "
+                            f"at support ≥ {record.cutoff:g}")
+        for text in warnings_seen:
+            self.append_log(f"note: {text}")
+        return True
+
+    def run_analysis_inline(self, kind: str, **options) -> bool:
+        """Run a sweep or resampling in the calling thread (scripts and tests)."""
+        job = self.start_analysis(kind, **options)
+        if job is None:
+            return False
+        try:
+            record, seen = job.run(lambda info: self.report_progress(job, info))
+        except SearchCancelled:
+            self.run_stopped(job)
+            return False
+        except DiscoveryError as err:
+            self.fail_run(job, str(err))
+            return False
+        return self.finish_run(job, record, seen)
+
+    def set_unrelated(self, rule: str, margin: float | None = None) -> bool:
+        """Choose the unrelated rule (and the margin δ with ``"equivalence"``) together."""
+        values = self.settings.to_dict()
+        values.update(unrelated=rule, margin=margin if margin is not None
+                      else values.get("margin"))
+        try:
+            settings = SearchSettings(**values)
+        except SettingsError as err:
+            self._error(err, "Settings")
+            return False
+        self.update({"settings": settings})
+        return True
+
     @property
     def job(self) -> SearchJob | None:
         """The current run's job, or None."""
@@ -786,6 +953,8 @@ class Session:
         stopped. Returns whether the result was taken."""
         if job is not self._job:
             return False
+        if isinstance(job, AnalysisJob):
+            return self._finish_analysis(job, result, warnings_seen)
         object.__setattr__(self, "_job", None)
         if job.cancel.is_set():
             self._stopped(job)
@@ -969,6 +1138,8 @@ class Session:
             "selection": list(self.selection),
             "controls": {"treatment": self.treatment, "outcome": self.outcome,
                          "planned": list(self.planned)},
+            "sweep": self.sweep.to_dict() if self.sweep is not None else None,
+            "support": self.support.to_dict() if self.support is not None else None,
         }
 
     def save_session(self, path) -> bool:
@@ -1215,10 +1386,15 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
                           for k in ("treatment", "outcome"))
     planned = tuple(v for v in roles.get("planned", ()) if isinstance(v, str)
                     and v in variables and v not in (treatment, outcome))
+    from discovery.robustness import SupportResult, SweepResult
+    sweep = SweepResult.from_dict(doc["sweep"], source=f"{label}: sweep") \
+        if doc.get("sweep") is not None else None
+    support = SupportResult.from_dict(doc["support"], source=f"{label}: support") \
+        if doc.get("support") is not None else None
     return ({"data_path": data_path, "dataset": dataset, "included": included,
              "settings": settings, "knowledge": knowledge, "result": result,
              "positions": {k: v for k, v in positions.items() if k in variables},
              "overlay": bool(doc.get("overlay", True)), "selection": selection,
              "stale": stale, "result_key": result_key, "treatment": treatment,
-             "outcome": outcome, "planned": planned,
+             "outcome": outcome, "planned": planned, "sweep": sweep, "support": support,
              "session_path": doc.get("autosave_of")}, warns)

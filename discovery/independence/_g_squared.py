@@ -422,6 +422,27 @@ class GSquared(IndependenceTest):
                     f"variables or merge rare levels")
         return super().test(x, y, given)
 
+    # -- for the equivalence rule (discovery.robustness) -------------------------------------
+    def g2_dof_rows(self, x: int, y: int, s) -> tuple[float, int, int]:
+        """``(G², degrees of freedom, rows used)`` of ``x ⟂ y | s`` (by index); ``(NaN, 0,
+        rows)`` when the minimum-rows rule skips the test."""
+        rows = self._rows((x, y, *s))
+        used = self.n if rows is None else int(rows.sum())
+        if self.skipped_by_rule(x, y, s):
+            return float("nan"), 0, used
+        codes = self._codes if rows is None else self._codes[rows]
+        rx, ry = int(self.levels[x]), int(self.levels[y])
+        cell = codes[:, x] * ry + codes[:, y]
+        strata = 1
+        if s:
+            present, stratum = np.unique(_strata(codes[:, list(s)], self.levels[list(s)]),
+                                         return_inverse=True)
+            cell = stratum.reshape(-1) * (rx * ry) + cell
+            strata = len(present)
+        counts = np.bincount(cell, minlength=strata * rx * ry).reshape(strata, rx, ry)
+        g2, dof = g_squared_table(counts)
+        return g2, dof, used
+
 
 def _strata(codes: np.ndarray, levels: np.ndarray) -> np.ndarray:
     """One integer per row naming its combination of conditioning values."""

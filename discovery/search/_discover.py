@@ -42,7 +42,8 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
              executor=None, progress: Callable | None = None, cancel=None,
              test_options: dict | None = None, hidden_causes: bool = False,
              pds_budget="auto", jobs: int | None = None,
-             cluster: str | None = None) -> SearchResult:
+             cluster: str | None = None, unrelated: str = "significance",
+             margin: float | None = None) -> SearchResult:
     """Search for the equivalence class of causal diagrams that fits the data.
 
     Parameters
@@ -90,6 +91,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     cluster : str, optional
         Without ``executor``: a Dask scheduler's address (``"tcp://host:port"``) to run
         those tests on instead.
+    unrelated : {"significance", "equivalence"}
+        What makes a pair unrelated (the **unrelated rule**): ``"significance"``, a p-value
+        above ``alpha`` (the usual rule); ``"equivalence"``, two one-sided tests at level
+        ``alpha`` show the effect lies within ``±margin`` (Schuirmann 1987; see
+        :mod:`discovery.robustness`). Equivalence works with ``fisher-z`` and ``g-squared``.
+    margin : float in (0, 1), optional
+        The equivalence margin δ (a partial correlation; for G² the mutual information of a
+        correlation of δ). Needed with ``unrelated="equivalence"``.
 
     Returns
     -------
@@ -143,6 +152,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     if isinstance(test, IndependenceTest):
         test_obj = test
         test_name = test.name
+        from ..data import Dataset
+        if isinstance(data, Dataset) and sorted(data.variables) == sorted(test.variables):
+            dataset = data  # the data the test was built from, for the record (a sweep)
     elif isinstance(test, str):
         check_parameter("test", test)
         test_name = test
@@ -153,12 +165,23 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     settings = SearchSettings(test=test_name, alpha=alpha, max_depth=max_depth,
                               collider_rule=collider_rule, missing=missing,
                               test_options=dict(test_options or {}),
-                              hidden_causes=hidden_causes)
+                              hidden_causes=hidden_causes, unrelated=unrelated,
+                              margin=margin)
     if not (pds_budget is None or pds_budget == "auto" or (
             isinstance(pds_budget, int) and not isinstance(pds_budget, bool)
             and pds_budget >= 0)):
         raise SettingsError(f"The 'pds_budget' parameter of discover must be 'auto', None or "
                             f"an int in [0, inf). Got {pds_budget!r} instead.")
+    if settings.unrelated == "equivalence" and settings.hidden_causes:
+        raise SettingsError("unrelated='equivalence' does not work with hidden_causes=True "
+                            "yet; use the significance rule for the hidden-causes search")
+    if settings.unrelated == "equivalence" and test_obj is None:
+        from ..robustness._equivalence import EQUIVALENCE_TESTS
+        if test_name not in EQUIVALENCE_TESTS:
+            raise SettingsError(f"unrelated='equivalence' works with the tests "
+                                f"{', '.join(EQUIVALENCE_TESTS)}; test {test_name!r} has no "
+                                "effect size to bound: use unrelated='significance' or "
+                                "another test")
     if test_obj is None:
         if data is None:
             raise DataValidationError("no data given; pass a DataFrame, a Dataset, or a test "
@@ -166,30 +189,12 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         dataset = _as_dataset(data, columns=columns, missing=missing)
         if dataset.missing != settings.missing:  # a Dataset carries its own policy
             settings = dataclasses.replace(settings, missing=dataset.missing)
-        from ..data import check_collinearity, check_for_search
-        from ..resources import check_search_memory
-        check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
-        check_search_memory(len(dataset.variables), len(dataset.frame))
-        frame = dataset.frame
-        in_name_order = sorted(dataset.variables)
-        if list(dataset.variables) != in_name_order:
-            frame = frame[in_name_order]
-        t_data = time.perf_counter()
-        if test_name == "fisher-z" and not test_options:
-            # the dataset is already hashed: name the data by that hash and the column order
-            test_obj = FisherZ(frame, missing=dataset.missing, fingerprint=dataset.sha256)
-        else:
-            test_obj = make_test(test_name, frame, missing=dataset.missing,
-                                 **(test_options or {}))
-        if test_name == "fisher-z":
-            # reuse the test's correlation matrix for the collinearity check (one matrix)
-            corr = getattr(test_obj, "_corr", None)
-            if corr is not None and list(dataset.variables) != in_name_order:
-                at = {v: i for i, v in enumerate(in_name_order)}
-                order = [at[v] for v in dataset.variables]
-                corr = corr[np.ix_(order, order)]
-            check_collinearity(dataset, correlation=corr)
+        test_obj, t_data = _test_for(dataset, test_name, max_depth, test_options)
     display = tuple(dataset.variables) if dataset is not None else tuple(test_obj.variables)
+    equivalence = settings.unrelated == "equivalence"
+    if equivalence:
+        from ..robustness._equivalence import EquivalenceTest
+        test_obj = EquivalenceTest(test_obj, settings.margin)
     if list(test_obj.variables) != sorted(test_obj.variables):
         test_obj = NameOrderedTest(test_obj)
     # From here on, variable indices follow the order of the names: enumeration and every
@@ -220,6 +225,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     def pvalues(idx):
         return cache.pvalues_array(test_obj, idx, executor=executor)
 
+    # The skeleton separates a pair when p > alpha. Equivalence p-values separate when
+    # p <= alpha: the skeleton sees -p against -alpha (the same order, reversed, exactly),
+    # and the signs are restored after the search.
+    sign = -1.0 if equivalence else 1.0
+    if equivalence:
+        def pvalues(idx, plain=pvalues):
+            return -plain(idx)
+
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
@@ -234,13 +247,17 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # A vectorised test's batches are elementwise work on small arrays: BLAS threads gain
     # nothing there, and threads left spinning after the correlation matrix compete with it.
     with blas_threads(1 if test_obj.vectorised else None):
-        skeleton = adjacency_search(len(names), pvalues, alpha=settings.alpha, max_depth=depth,
+        skeleton = adjacency_search(len(names), pvalues, alpha=sign * settings.alpha,
+                                    max_depth=depth,
                                     locked=locked, forbidden=forbidden, progress=progress,
                                     cancelled=cancelled, association=test_obj.association(),
                                     batch_limit=None if test_obj.vectorised
                                     else 64 * max(1, getattr(executor, "jobs", 1)),
-                                    may_separate=lambda pairs: test_obj.may_separate(
+                                    may_separate=None if equivalence
+                                    else lambda pairs: test_obj.may_separate(
                                         pairs, settings.alpha))
+        if equivalence:
+            _restore_signs(skeleton)
         t1 = t_pds = time.perf_counter()
         if settings.hidden_causes:
             _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
@@ -255,8 +272,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         if settings.collider_rule != "standard":
             separating_sets_of = _separating_sets_finder(
                 skeleton.adjacent,
-                lambda batch: cache.pvalues(test_obj, batch, executor=executor, canonical=True),
-                settings.alpha, depth, cancelled)
+                lambda batch: sign * cache.pvalues(test_obj, batch, executor=executor,
+                                                   canonical=True),
+                sign * settings.alpha, depth, cancelled)
         if settings.hidden_causes:
             orientation = orient_pag(
                 skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
@@ -280,8 +298,19 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     if skeleton.unseparated_forbidden:
         notes.append(f"{len(skeleton.unseparated_forbidden)} forbidden pair(s) had no "
                      "separating set in the data; triples through them were left undecided")
+    undecided = ()
+    if equivalence:
+        undecided = _undecided_pairs(skeleton, test_obj, settings.alpha, names)
+        notes.append(f"unrelated rule: equivalence with margin {settings.margin:g}; a pair "
+                     f"was removed only when two one-sided tests (alpha {settings.alpha:g}) "
+                     f"showed its effect within ±{settings.margin:g}; the removed pairs' "
+                     "p-values are equivalence p-values")
+        if undecided:
+            notes.append(f"{len(undecided)} pair(s) undecided (neither shown related nor "
+                         "shown within the margin; kept adjacent): "
+                         + ", ".join(f"{a} — {b}" for a, b in undecided))
     return _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes,
-                         dataset, test_obj, cache, (hits0, misses0, hits1, misses1),
+                         dataset, test_obj, cache, (hits0, misses0, hits1, misses1), undecided,
                          timings={"data_s": t_data - started,
                                   "test_setup_s": t0 - t_data,
                                   "skeleton_s": t1 - t0, "orientation_s": t2 - t_pds,
@@ -330,6 +359,35 @@ def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, pro
     if depth is not None and phase["largest"] > depth:
         notes.append(f"possible-d-separating sets have up to {phase['largest']} variables; "
                      f"subsets were tried up to the depth limit {depth}")
+
+
+def _test_for(dataset, test_name, max_depth, test_options):
+    """Check the data for the test and build it (variables in name order); returns the test
+    and the time the checks ended. A sweep builds its test once through this."""
+    from ..data import check_collinearity, check_for_search
+    from ..resources import check_search_memory
+    check_for_search(dataset, test=test_name, max_depth=max_depth, collinearity=False)
+    check_search_memory(len(dataset.variables), len(dataset.frame))
+    frame = dataset.frame
+    in_name_order = sorted(dataset.variables)
+    if list(dataset.variables) != in_name_order:
+        frame = frame[in_name_order]
+    t_data = time.perf_counter()
+    if test_name == "fisher-z" and not test_options:
+        # the dataset is already hashed: name the data by that hash and the column order
+        test_obj = FisherZ(frame, missing=dataset.missing, fingerprint=dataset.sha256)
+    else:
+        test_obj = make_test(test_name, frame, missing=dataset.missing,
+                             **(test_options or {}))
+    if test_name == "fisher-z":
+        # reuse the test's correlation matrix for the collinearity check (one matrix)
+        corr = getattr(test_obj, "_corr", None)
+        if corr is not None and list(dataset.variables) != in_name_order:
+            at = {v: i for i, v in enumerate(in_name_order)}
+            order = [at[v] for v in dataset.variables]
+            corr = corr[np.ix_(order, order)]
+        check_collinearity(dataset, correlation=corr)
+    return test_obj, t_data
 
 
 def _as_dataset(data, *, columns, missing):
@@ -463,8 +521,45 @@ def _software() -> dict:
             "pandas": pandas.__version__, "networkx": networkx.__version__}
 
 
+def _restore_signs(skeleton) -> None:
+    """Undo the sign flip of the equivalence rule in the skeleton's record (p-values back to
+    the equivalence p-values)."""
+    skeleton.log[:] = [(idx, -p) for idx, p in skeleton.log]
+    sepsets = skeleton.sepsets
+    sepsets._blocks = [(rows, -p) for rows, p in sepsets._blocks]
+    skeleton.locked_conflicts[:] = [(x, y, s, -p) for x, y, s, p in skeleton.locked_conflicts]
+
+
+def _undecided_pairs(skeleton, test_obj, alpha, names) -> tuple:
+    """Adjacent pairs that some test could not call related (significance p > alpha) and
+    that no test showed unrelated (equivalence p > alpha): the data cannot tell."""
+    n = len(names)
+    adjacent = np.zeros((n, n), dtype=bool)
+    for x, ys in enumerate(skeleton.adjacent):
+        adjacent[x, list(ys)] = True
+    found = set()
+    for idx, _ in skeleton.log:
+        rows = idx[adjacent[idx[:, 0], idx[:, 1]]]
+        if not len(rows):
+            continue
+        plain = test_obj.significance_pvalues(rows) if hasattr(
+            test_obj, "significance_pvalues") else _inner_significance(test_obj, rows)
+        for x, y in rows[plain > alpha][:, :2].tolist():
+            found.add((names[x], names[y]))
+    return tuple(sorted(found))
+
+
+def _inner_significance(test_obj, rows):
+    """Significance p-values through a NameOrderedTest around an EquivalenceTest."""
+    m = np.asarray(test_obj._to_inner, dtype=np.intp)
+    mapped = np.sort(m[rows[:, :2]], axis=1)
+    inner_rows = np.column_stack([mapped, np.sort(m[rows[:, 2:]], axis=1)]) \
+        if rows.shape[1] > 2 else mapped
+    return test_obj.inner.significance_pvalues(inner_rows)
+
+
 def _build_result(names, display, rank, settings, knowledge, skeleton, orientation, notes, dataset,
-                  test_obj, cache, tallies, timings) -> SearchResult:
+                  test_obj, cache, tallies, undecided, timings) -> SearchResult:
     key = rank.__getitem__
     index = {v: i for i, v in enumerate(names)}
     hits0, misses0, hits1, misses1 = tallies
@@ -559,7 +654,7 @@ def _build_result(names, display, rank, settings, knowledge, skeleton, orientati
         triples=LazyRecords(orientation.triple_records),
         conflicts=tuple(orientation.conflicts), notes=tuple(notes) + tuple(orientation.notes),
         counts=counts, timings={k: round(v, 6) for k, v in timings.items()}, data=data,
-        software=_software(), seed=getattr(test_obj, "seed", None))
+        software=_software(), seed=getattr(test_obj, "seed", None), undecided=undecided)
 
 
 def _pag_edge(orientation, names, x, y, max_pvalue, tests, locked, untestable="") -> Edge:

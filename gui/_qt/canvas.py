@@ -149,8 +149,8 @@ def _end(painter, mark, tip, ux, uy, *, color, scale):
 def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=None,
               locked: bool = False, forbidden_heads=(), hover: bool = False,
               selected: bool = False, scale: float = 1.0, faded: bool = False,
-              control: QPointF | None = None, badge_t: float = 0.5):
-    """Draw one mark from a to b.
+              control: QPointF | None = None, badge_t: float = 0.5, weight: float = 1.0):
+    """Draw one mark from a to b (``weight`` scales the line width, e.g. by support).
 
     ``kind`` is an edge kind (``directed``, ``undirected``, ``contested``, and the
     hidden-causes kinds ``bidirected``, ``partially-directed``, ``nondirected``,
@@ -178,7 +178,7 @@ def draw_edge(painter: QPainter, a: QPointF, b: QPointF, kind: str, *, marks=Non
         ua = _unit(control, a)[:2]
         ub = _unit(control, b)[:2]
     mid = path.pointAtPercent(0.5)
-    width = (2.6 if selected else 1.9 if hover else 1.5) * scale
+    width = (2.6 if selected else 1.9 if hover else 1.5) * scale * weight
     painter.save()
     painter.setRenderHint(QPainter.Antialiasing)
     painter.setBrush(Qt.NoBrush)
@@ -485,7 +485,8 @@ class EdgeItem(QGraphicsItem):
                   locked=self.locked and overlay,
                   forbidden_heads=self.forbidden_heads if overlay else (),
                   hover=self.hover, selected=self.selected, faded=self.faded,
-                  control=self.control, badge_t=self.badge_t)
+                  control=self.control, badge_t=self.badge_t,
+                  weight=support_weight(self.canvas.session, self.source, self.target))
 
     def hoverEnterEvent(self, event):
         self.hover = True
@@ -501,6 +502,16 @@ class EdgeItem(QGraphicsItem):
             event.accept()
         else:
             super().mousePressEvent(event)
+
+
+def support_weight(session, a: str, b: str) -> float:
+    """Line-width factor from resampling support: 1 without a support run; else from 0.5
+    (never adjacent in a resample) to 2 (adjacent in every one)."""
+    record = getattr(session, "support", None)
+    if record is None:
+        return 1.0
+    pair = record.pair(a, b)
+    return 0.5 + 1.5 * (pair.adjacent if pair is not None else 0.0)
 
 
 class OverlayItem(QGraphicsItem):
@@ -732,6 +743,7 @@ class GraphCanvas(QGraphicsView):
         self.path_pairs: set = set()
         for name in ("treatment", "outcome", "planned", "controls"):
             getattr(ev, name).connect(self._on_roles)
+        ev.support.connect(self._on_support)
         self._rebuild()
 
     def node_arrays(self):
@@ -758,6 +770,10 @@ class GraphCanvas(QGraphicsView):
     def _on_structure(self, _=None):
         self._rebuild()
         self._place_overlays()
+
+    def _on_support(self, _=None):
+        """Edge widths follow resampling support: repaint."""
+        self.viewport().update()
 
     def _rebuild(self):
         s = self.session

@@ -266,9 +266,12 @@ class Inspector(QWidget):
         r = s.result
         alpha = s.settings.alpha
         evidence = None
+        margin = None  # the equivalence margin when the result used the equivalence rule
         if r is not None and a in r.variables and b in r.variables:
             evidence = r.evidence(a, b)
             alpha = r.settings.alpha
+            if getattr(r.settings, "unrelated", "significance") == "equivalence":
+                margin = r.settings.margin
             e = evidence.edge
             if e is not None:
                 colour = "#B5482F" if e.kind == "contested" else "#1B232B"
@@ -284,13 +287,26 @@ class Inspector(QWidget):
                                 "fit the independence pattern equally well.</p>")
                 else:
                     html.append(f"<p>Why: {escape(e.reason)}</p>")
-                html.append(f"<p>Decisive p-value: <b>{_p(e.max_pvalue)}</b> (the largest of "
-                            f"{e.tests} tests; the edge stays because every p-value is at "
-                            f"or below α = {alpha:g})</p>")
+                if margin is None:
+                    html.append(f"<p>Decisive p-value: <b>{_p(e.max_pvalue)}</b> (the largest "
+                                f"of {e.tests} tests; the edge stays because every p-value is "
+                                f"at or below α = {alpha:g})</p>")
+                else:
+                    undecided = {a, b} in [set(p) for p in getattr(r, "undecided", ())]
+                    html.append(f"<p>Equivalence rule, margin δ = {margin:g}: no test showed "
+                                f"the effect within ±{margin:g} (every equivalence p-value is "
+                                f"above α = {alpha:g})"
+                                + ("; <b>undecided</b>: some test could not show a relation "
+                                   "either" if undecided else "") + ".</p>")
             else:
                 rem = evidence.removal
                 html.append("<p style='font-size:13px'><b>not adjacent</b></p>")
-                if rem is not None and rem.by == "test":
+                if rem is not None and rem.by == "test" and margin is not None:
+                    html.append(f"<p>Removed: shown unrelated given <b>"
+                                f"{escape(_set(rem.separating_set))}</b> (equivalence p = "
+                                f"{_p(rem.pvalue)} ≤ α = {alpha:g}: effect within "
+                                f"±{margin:g}).</p>")
+                elif rem is not None and rem.by == "test":
                     html.append(f"<p>Removed: independent given <b>{escape(_set(rem.separating_set))}"
                                 f"</b> (p = {_p(rem.pvalue)} &gt; α = {alpha:g}).</p>")
                 elif rem is not None:
@@ -319,17 +335,22 @@ class Inspector(QWidget):
         html.append("<p><b>Knowledge</b>: " + (escape("; ".join(statements)) if statements
                                                else "none about this pair") + "</p>")
         self.body.setText("".join(html))
-        self._fill_tests(evidence, alpha)
+        self._fill_tests(evidence, alpha, equivalence=margin is not None)
 
-    def _fill_tests(self, evidence, alpha):
+    def _fill_tests(self, evidence, alpha, *, equivalence=False):
         tests = list(evidence.tests) if evidence is not None else []
         self._show_tests(True)
         self.tests_label.setText(f"Tests on this pair ({len(tests)})")
         self.tests.setRowCount(len(tests))
         for row, t in enumerate(tests):
-            independent = t.pvalue == t.pvalue and t.pvalue > alpha
-            verdict = ("independent" if independent else
-                       "no result (NaN)" if t.pvalue != t.pvalue else "dependent")
+            if equivalence:  # equivalence p-values: small means shown unrelated
+                independent = t.pvalue == t.pvalue and t.pvalue <= alpha
+                verdict = ("within margin" if independent else "no result (NaN)"
+                           if t.pvalue != t.pvalue else "not shown within margin")
+            else:
+                independent = t.pvalue == t.pvalue and t.pvalue > alpha
+                verdict = ("independent" if independent else
+                           "no result (NaN)" if t.pvalue != t.pvalue else "dependent")
             items = (QTableWidgetItem(_set(t.given)), QTableWidgetItem(_p(t.pvalue)),
                      QTableWidgetItem(verdict))
             items[1].setTextAlignment(Qt.AlignRight | Qt.AlignVCenter)

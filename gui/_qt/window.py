@@ -26,7 +26,7 @@ from discovery.settings import PARAMETERS
 from .. import _session
 from .._words import test_label
 from . import export as _export
-from . import style
+from . import robustness_actions, style
 from .canvas import GraphCanvas
 from .controls_panel import ControlsPanel
 from .inspector import Inspector
@@ -140,6 +140,7 @@ class MainWindow(QMainWindow):
         self._build_docks()
         self._build_menus()
         self._build_status()
+        robustness_actions.install(self)  # sweep, resample, unrelated rule; two panels
 
         self._auto_timer = QTimer(self)
         self._auto_timer.setSingleShot(True)

@@ -68,11 +68,18 @@ class SearchRunner(QObject):
         return any(t.isRunning() for t, _ in self._threads)
 
     def start(self) -> bool:
-        job = self.session.start_run()
+        return self._launch(self.session.start_run())
+
+    def start_analysis(self, kind: str, **options) -> bool:
+        """Start a survival sweep or a resampling run (see ``Session.start_analysis``) on a
+        worker thread, with the same progress and Stop as a search."""
+        return self._launch(self.session.start_analysis(kind, **options))
+
+    def _launch(self, job) -> bool:
         if job is None:
             return False
         thread = QThread(self)
-        thread.setObjectName(f"search-{job.run_id}")
+        thread.setObjectName(f"{getattr(job, 'kind', 'search')}-{job.run_id}")
         worker = _Worker(job)
         worker.moveToThread(thread)
         thread.started.connect(worker.run)
