@@ -39,6 +39,7 @@ import numpy as np
 from discovery import __version__ as ENGINE_VERSION
 from discovery.exceptions import (DiscoveryError, KnowledgeError, ResultFormatError,
                                   SearchCancelled, SettingsError)
+from discovery.files import parse_json_checked, read_text_checked, write_text_atomic
 from discovery.independence import PValueCache
 from discovery.knowledge import Knowledge
 from discovery.result import SearchResult
@@ -86,6 +87,8 @@ _INPUT_FIELDS = {"settings", "knowledge", "included"}
 _SAVED_FIELDS = {"settings", "knowledge", "included", "result", "positions", "overlay",
                  "data_path"}
 _LOG_LINES = 2000
+#: Node positions in a session file beyond this (canvas units) are refused as damage.
+_MAX_COORDINATE = 1e6
 _STOP_CHUNK = 2048  # a batch is split so that a stop is seen within one chunk
 
 
@@ -871,7 +874,7 @@ class Session:
         if path.suffix != SUFFIX:
             path = path.with_name(path.name + SUFFIX)
         try:
-            _write_atomic(path, json.dumps(self.to_dict(base=path.resolve().parent),
+            write_text_atomic(path, json.dumps(self.to_dict(base=path.resolve().parent),
                                            indent=1, ensure_ascii=False) + "\n")
         except OSError as err:
             self._error(f"{path}: cannot write the session ({err.strerror or err}); choose "
@@ -931,7 +934,7 @@ class Session:
         doc["autosave_of"] = self.session_path
         try:
             self.autosave_path.parent.mkdir(parents=True, exist_ok=True)
-            _write_atomic(self.autosave_path, json.dumps(doc, ensure_ascii=False))
+            write_text_atomic(self.autosave_path, json.dumps(doc, ensure_ascii=False))
         except OSError:
             return False
         object.__setattr__(self, "_autosaved_generation", self._generation)
@@ -953,14 +956,19 @@ class Session:
         or None when there is none or it is unreadable."""
         path = Path(autosave_path)
         try:
-            doc = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, UnicodeDecodeError, json.JSONDecodeError):
+            doc = parse_json_checked(
+                read_text_checked(path, what="autosave file", error=ResultFormatError),
+                source=str(path), error=ResultFormatError)
+        except ResultFormatError:
             return None
         if not isinstance(doc, dict) or doc.get("format") != FORMAT:
             return None
-        data = doc.get("data") or {}
-        return {"saved": doc.get("saved"), "data": data.get("path"),
-                "session": doc.get("autosave_of"), "path": str(path)}
+        data = doc.get("data") if isinstance(doc.get("data"), dict) else {}
+
+        def text(value):
+            return value if isinstance(value, str) and "\0" not in value else None
+        return {"saved": text(doc.get("saved")), "data": text(data.get("path")),
+                "session": text(doc.get("autosave_of")), "path": str(path)}
 
     def recover(self) -> bool:
         """Open the autosave copy as the current (unsaved) workspace."""
@@ -978,45 +986,43 @@ def run_counts(result: SearchResult) -> str:
             f"{c.get('tests', 0)} tests, {c.get('tests_from_cache', 0)} from the cache")
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-
-
 def _read_session(path: Path) -> tuple[dict, list[str]]:
-    """Parse and validate a session file; return field values and warnings."""
-    from discovery.data import read_table
+    """Parse and validate a session file; return field values and warnings.
 
+    Every way a file can be wrong (not a regular file, too large, nested too deep, a field of
+    the wrong type, a damaged embedded result) raises one :class:`ResultFormatError` line.
+    """
     label = str(path)
 
     def fail(what):
         raise ResultFormatError(f"{label}: {what}")
 
+    text = read_text_checked(path, what="session file", error=ResultFormatError)
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        fail("session file not found; check the path")
-    except IsADirectoryError:
-        fail("is a folder, not a session file; choose a .edgewise file")
-    except (OSError, UnicodeDecodeError) as err:
-        fail(f"cannot be read ({getattr(err, 'strerror', None) or err}); choose a .edgewise "
-             "file")
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as err:
-        fail(f"not a session file (invalid JSON at line {err.lineno}: {err.msg}); choose a "
-             ".edgewise file saved by Edgewise")
+        doc = parse_json_checked(text, source=label, error=ResultFormatError)
+    except ResultFormatError as err:
+        raise ResultFormatError(f"{err}; not a session file — choose a .edgewise file saved "
+                                "by Edgewise") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
         fail(f"not an Edgewise session ('format' is not {FORMAT!r}); choose a .edgewise "
              "file saved by Edgewise")
     if doc.get("version") != VERSION:
         fail(f"session version {doc.get('version')!r} is not supported (this Edgewise reads "
              f"version {VERSION}); open it with the Edgewise that saved it")
+    try:
+        return _session_fields(doc, path, fail)
+    except DiscoveryError:
+        raise
+    except (TypeError, KeyError, ValueError, AttributeError, IndexError) as err:
+        # a field nested where no check looked: still one line, never a traceback
+        fail(f"the file is damaged ({type(err).__name__}: {str(err)[:120]}); open an older "
+             "copy or start again from the data")
+
+
+def _session_fields(doc: dict, path: Path, fail) -> tuple[dict, list[str]]:
+    from discovery.data import read_table
+
+    label = str(path)
     for name, kind in (("settings", dict), ("knowledge", dict), ("included", list),
                        ("positions", dict)):
         if not isinstance(doc.get(name), kind):
@@ -1034,12 +1040,20 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
     for name, xy in doc["positions"].items():
         if not (isinstance(xy, list) and len(xy) == 2
                 and all(isinstance(c, (int, float)) and not isinstance(c, bool)
-                        and np.isfinite(c) for c in xy)):
-            fail(f"position of {name!r} must be two numbers [x, y]; got {xy!r}")
+                        and np.isfinite(c) and abs(c) <= _MAX_COORDINATE for c in xy)):
+            fail(f"position of {name!r} must be two numbers [x, y] within "
+                 f"±{_MAX_COORDINATE:g}; got {str(xy)[:60]}")
         positions[name] = (float(xy[0]), float(xy[1]))
     included = doc["included"]
     if not all(isinstance(v, str) for v in included):
         fail("'included' must be a list of variable names")
+    for name, kinds, what in (("overlay", (bool,), "true or false"),
+                              ("selection", (list,), "a list of variable names"),
+                              ("result_inputs", (dict,), "a table"),
+                              ("autosave_of", (str,), "a path")):
+        if doc.get(name) is not None and not isinstance(doc[name], kinds):
+            fail(f"'{name}' must be {what}; got {type(doc[name]).__name__} — the file is "
+                 "damaged, open an older copy or start again from the data")
     warns = []
     dataset = None
     data_path = None
@@ -1048,6 +1062,12 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
     if data is not None:
         if not isinstance(data, dict) or not isinstance(data.get("path"), str):
             fail("'data' must be a table with the data file's 'path'")
+        for key in ("path", "relative", "sha256"):
+            value = data.get(key)
+            if value is not None and (not isinstance(value, str) or "\0" in value
+                                      or len(value) > 4096):
+                fail(f"'data.{key}' must be a path or fingerprint text; the file is damaged "
+                     "— open an older copy, or open the data (File → Open data)")
         candidates = []
         if isinstance(data.get("relative"), str):
             candidates.append(path.resolve().parent / data["relative"])
@@ -1089,14 +1109,20 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
         inputs = doc.get("result_inputs")
         if isinstance(inputs, dict):
             try:
+                if not (isinstance(inputs.get("settings"), dict)
+                        and isinstance(inputs.get("knowledge"), dict)
+                        and isinstance(inputs.get("included"), list)
+                        and all(isinstance(v, str) for v in inputs["included"])):
+                    raise TypeError("'settings', 'knowledge' (tables) and 'included' (a list "
+                                    "of names) are needed")
                 result_key = (SearchSettings.from_dict(inputs["settings"]),
                               Knowledge.from_dict(inputs["knowledge"], source=label),
                               tuple(inputs["included"]))
-            except (KeyError, TypeError, SettingsError) as err:
-                fail(f"'result_inputs' is damaged ({err})")
+            except (KeyError, TypeError, SettingsError, KnowledgeError) as err:
+                fail(f"'result_inputs' is damaged ({err}); open an older copy or run again")
         else:
             result_key = (result.settings, result.knowledge, tuple(result.variables))
-    selection = tuple(v for v in doc.get("selection", ()) if isinstance(v, str)
+    selection = tuple(v for v in doc.get("selection") or () if isinstance(v, str)
                       and v in variables)[:2]
     return ({"data_path": data_path, "dataset": dataset, "included": included,
              "settings": settings, "knowledge": knowledge, "result": result,

@@ -328,7 +328,7 @@ def test_changed_data_is_a_warning_and_marks_the_result_stale(tmp_path):
 
 
 @pytest.mark.parametrize("content, expected", [
-    ("{not json", "not a session file (invalid JSON"),
+    ("{not json", "not valid JSON"),
     (json.dumps({"format": "edgewise-result", "version": 1}), "not an Edgewise session"),
     (json.dumps({"format": "edgewise-session", "version": 7}), "version 7 is not supported"),
     (json.dumps({"format": "edgewise-session", "version": 1, "settings": {}, "knowledge": {},
