@@ -726,6 +726,12 @@ class Session:
             self._error("no data open; open a CSV, TSV or Parquet file first (File → Open "
                         "data)", "Run")
             return None
+        if len(self.dataset.variables) < 2:
+            self._error(f"{Path(self.data_path or self.dataset.source).name}: "
+                        f"{len(self.dataset.variables)} usable column(s) (the Variables panel "
+                        "says why the others are left out); a search needs at least 2 — "
+                        "open another table (File → Open…)", "Run")
+            return None
         if len(self.included) < 2:
             self._error("a search needs at least 2 included variables; tick more in the "
                         "Variables panel", "Run")
