@@ -9,15 +9,28 @@ fraction of a second and no partial result is ever passed on as final.
 
 from __future__ import annotations
 
-import sys
 import time
 import traceback
+from pathlib import Path
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
 from discovery.exceptions import DiscoveryError, SearchCancelled
 
 _MIN_INTERVAL = 0.05
+
+
+def unexpected_line(err: BaseException) -> str:
+    """One line for an error the search did not expect: what it was and where it happened
+    (the innermost frame), for the user to report; never a traceback."""
+    where = ""
+    frames = traceback.extract_tb(err.__traceback__)
+    if frames:
+        last = frames[-1]
+        where = f" at {Path(last.filename).name}:{last.lineno} in {last.name}"
+    what = " ".join(str(err).split())[:200]
+    return (f"unexpected error in the search ({type(err).__name__}: {what}{where}); "
+            "nothing was changed — please report this line with the run log")
 
 
 class _Worker(QObject):
@@ -47,10 +60,11 @@ class _Worker(QObject):
             self.stopped.emit(self.job)
         except DiscoveryError as err:
             self.failed.emit(self.job, str(err))
-        except Exception as err:  # a bug: one line for the user, details on stderr
-            traceback.print_exc(file=sys.stderr)
-            self.failed.emit(self.job, f"unexpected error in the search ({type(err).__name__}: {err}); "
-                             "please report it with the run log")
+        except MemoryError:
+            self.failed.emit(self.job, "the search ran out of memory; untick variables in "
+                             "the Variables panel or set the Depth box lower, then run again")
+        except Exception as err:  # a bug: one line for the user, where it happened in the log
+            self.failed.emit(self.job, unexpected_line(err))
         else:
             self.finished.emit(self.job, result, seen)
 
