@@ -50,7 +50,7 @@ from ._events import EventGroup
 from ._words import window_words
 from ._notifications import NotificationChannel
 
-__all__ = ["Session", "SearchJob", "FORMAT", "VERSION", "STATUSES", "FIELDS",
+__all__ = ["Session", "SearchJob", "ArrangePlan", "FORMAT", "VERSION", "STATUSES", "FIELDS",
            "restrict_knowledge"]
 
 FORMAT = "edgewise-session"
@@ -190,6 +190,32 @@ class SearchJob:
         return result, seen
 
 
+@dataclasses.dataclass(frozen=True)
+class ArrangePlan:
+    """A snapshot of what one Arrange needs; :meth:`compute` runs on any thread.
+
+    Attributes
+    ----------
+    token : int
+        The request's number; :meth:`Session.apply_arrange` applies only the latest.
+    """
+
+    token: int
+    label: str
+    style: str
+    variables: tuple
+    edges: tuple
+    directed: tuple
+    stages: tuple
+    sizes: Mapping = dataclasses.field(default_factory=dict)
+    aspect: float | None = None
+
+    def compute(self) -> dict:
+        """The layout, ``{name: (x, y)}`` (no session state is touched)."""
+        return _layout.arrange(self.variables, self.edges, self.stages, style=self.style,
+                               directed=self.directed, sizes=self.sizes, aspect=self.aspect)
+
+
 class _StoppableCache:
     """The session's cache, answering big batches in chunks and checking the stop flag
     between them, so that Stop is honoured within one chunk (well under a second). Every
@@ -267,6 +293,8 @@ class Session:
         object.__setattr__(self, "_auto_layout", True)
         # the layout style Arrange last used ("auto", "layered" or "force")
         object.__setattr__(self, "layout_style", "auto")
+        # counts Arrange requests: only the latest one's layout is applied
+        object.__setattr__(self, "_arrange_token", 0)
         # True while the result shown was found on other data than the file now open (a
         # session whose data file changed): stale whatever the inputs, until a run
         object.__setattr__(self, "_data_changed", False)
@@ -629,29 +657,56 @@ class Session:
             is remembered for later layouts (the first diagram of a new run, stage edits).
             By default the last one used.
         """
+        plan = self.plan_arrange(style)
+        if plan is not None:
+            self.apply_arrange(plan, plan.compute())
+
+    def plan_arrange(self, style: str | None = None) -> "ArrangePlan | None":
+        """Snapshot what a fresh layout needs (see :meth:`arrange`); the plan's
+        :meth:`~ArrangePlan.compute` may run on any thread (a dense diagram's force-directed
+        layout takes seconds), then :meth:`apply_arrange` puts it in place. None (with a
+        message) for an unknown style."""
         if style is not None:
             if style not in _layout.STYLES:
                 self._error(f"layout must be one of {_layout.STYLES}; got {style!r}",
                             "Arrange")
-                return
+                return None
             object.__setattr__(self, "layout_style", style)
+        object.__setattr__(self, "_arrange_token", self._arrange_token + 1)
         label = {"auto": "Arrange", "layered": "Arrange in layers",
                  "force": "Arrange force-directed"}[self.layout_style]
-        self._edit({"positions": self._arranged()}, label)
+        return ArrangePlan(self._arrange_token, label, self.layout_style,
+                           *self._layout_inputs(), sizes=dict(self.node_sizes),
+                           aspect=self.view_aspect)
+
+    def apply_arrange(self, plan: "ArrangePlan", positions: Mapping) -> bool:
+        """Put a computed layout in place (one undoable step), unless a later Arrange was
+        asked for or the diagram changed meanwhile; True when it was applied."""
+        if (plan.token != self._arrange_token
+                or (plan.variables, plan.edges, plan.directed, plan.stages)
+                != self._layout_inputs()):
+            return False
+        self._edit({"positions": positions}, plan.label)
         self._laid_out()
+        return True
 
     def _laid_out(self) -> None:
         """A fresh layout is in place: tell the views (the canvas fits the view to it)."""
         self.update({"layouts": self.layouts + 1})
 
-    def _arranged(self, knowledge: Knowledge | None = None) -> dict:
+    def _layout_inputs(self, knowledge: Knowledge | None = None) -> tuple:
+        """(variables, edges, arrows, stages): what a layout of the diagram depends on."""
         knowledge = knowledge or self.knowledge
-        edges = [(e.source, e.target) for e in self.result.edges] if self.result else []
-        directed = ([(e.source, e.target) for e in self.result.edges
-                     if e.kind == "directed"] if self.result else [])
-        return _layout.arrange(self.variables, edges, knowledge.stages,
-                               style=self.layout_style, directed=directed,
-                               sizes=self.node_sizes, aspect=self.view_aspect)
+        edges = self.result.edges if self.result else ()
+        return (tuple(self.variables), tuple((e.source, e.target) for e in edges),
+                tuple((e.source, e.target) for e in edges if e.kind == "directed"),
+                tuple(tuple(g) for g in knowledge.stages))
+
+    def _arranged(self, knowledge: Knowledge | None = None) -> dict:
+        variables, edges, directed, stages = self._layout_inputs(knowledge)
+        return _layout.arrange(variables, edges, stages, style=self.layout_style,
+                               directed=directed, sizes=self.node_sizes,
+                               aspect=self.view_aspect)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]

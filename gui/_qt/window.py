@@ -31,7 +31,7 @@ from .canvas import GraphCanvas
 from .inspector import Inspector
 from .panels import StagesEditor, VariablesPanel
 from .style import signals_blocked
-from .worker import SearchRunner
+from .worker import ArrangeRunner, SearchRunner
 
 #: The α slider spans this range on a log scale; the number box accepts anything the
 #: constraint table allows (0 < α < 1).
@@ -129,8 +129,10 @@ class MainWindow(QMainWindow):
         self.setAcceptDrops(True)
         self.resize(QSize(1360, 860))
         self.runner = SearchRunner(self.session, self)
+        self.arranger = ArrangeRunner(self.session, self)  # layouts off the GUI thread
 
         self.canvas = GraphCanvas(self.session)
+        self.canvas.arrange = self.arrange
         self.canvas.setAcceptDrops(False)
         self.canvas.viewport().setAcceptDrops(False)
         self.setCentralWidget(self.canvas)
@@ -233,17 +235,17 @@ class MainWindow(QMainWindow):
                              ["Ctrl++", "Ctrl+="])
         self.act_zoom_out = a("actionZoomOut", "Zoom out", lambda: self.canvas.zoom(0.8),
                               "Ctrl+-")
-        self.act_arrange = a("actionArrange", "Arrange", s.arrange, "Ctrl+L",
+        self.act_arrange = a("actionArrange", "Arrange", self.arrange, "Ctrl+L",
                              "Lay the diagram out again, in the layout chosen last (at first: "
                              "layered by stage, else force-directed)")
         self.act_arrange_auto = a("actionArrangeAuto", "Layered by stage, else force-directed",
-                                  lambda: s.arrange("auto"))
+                                  lambda: self.arrange("auto"))
         self.act_arrange_layered = a("actionArrangeLayered", "In layers (by stage, else by "
-                                     "arrow direction)", lambda: s.arrange("layered"),
+                                     "arrow direction)", lambda: self.arrange("layered"),
                                      None, "Columns left to right: stages, or without stages "
                                      "the arrows' direction (every arrow points right)")
         self.act_arrange_force = a("actionArrangeForce", "Force-directed",
-                                   lambda: s.arrange("force"))
+                                   lambda: self.arrange("force"))
         self.act_find = a("actionFind", "Find a variable…", self.canvas.show_find,
                           QKeySequence.Find, "Find a variable by name and focus on its "
                                              "neighbours (Esc in the box ends the focus)")
@@ -665,6 +667,13 @@ class MainWindow(QMainWindow):
         self._rerun_after_stop = False
         return self.runner.stop()
 
+    def arrange(self, style=None) -> bool:
+        """Lay the diagram out again on a worker thread (the window keeps answering)."""
+        started = self.arranger.start(style)
+        if started:
+            self.statusBar().showMessage("Arranging…", 2000)
+        return started
+
     def open_path(self, path) -> bool:
         """Open a data table or a ``.edgewise`` session, by its suffix."""
         path = str(path)
@@ -865,6 +874,7 @@ class MainWindow(QMainWindow):
             event.ignore()
             return
         self.runner.shutdown()
+        self.arranger.wait()
         self.qsettings.setValue("geometry", self.saveGeometry())
         self.qsettings.setValue("windowState", self.saveState())
         self.qsettings.setValue("autoRun", self.act_auto.isChecked())
