@@ -984,6 +984,40 @@ class Session:
             self.notifications.warning(window_words(text), title="Open session")
         return True
 
+    def open_result(self, path) -> bool:
+        """Show a saved result file (written by ``edgewise discover --out`` or Export →
+        Result as JSON) as a new workspace without data: its diagram, evidence, settings and
+        knowledge. To run again, open the data.
+
+        Nothing changes unless the whole file is valid.
+        """
+        from discovery.result import load_result
+        try:
+            result = load_result(path)
+        except DiscoveryError as err:
+            self._error(err, "Open result")
+            return False
+        self._reset_history()
+        object.__setattr__(self, "cache", PValueCache())
+        object.__setattr__(self, "_job", None)
+        object.__setattr__(self, "_result_key", (
+            result.settings, restrict_knowledge(result.knowledge, result.variables),
+            tuple(result.variables)))
+        object.__setattr__(self, "_auto_layout", False)
+        object.__setattr__(self, "_data_changed", False)
+        object.__setattr__(self, "last_run_seconds", None)
+        self.update({"data_path": None, "dataset": None, "included": result.variables,
+                     "settings": result.settings, "knowledge": result.knowledge,
+                     "result": result, "status": "done", "progress": None, "selection": (),
+                     "positions": {}, "session_path": None, "layouts": self.layouts + 1})
+        self._ensure_positions()
+        self.update({"stale": self._compute_stale()})
+        self.update({"dirty": False})
+        object.__setattr__(self, "_autosaved_generation", self._generation)
+        self.append_log(f"result opened from {path}: {run_counts(result)}; to run again, "
+                        "open its data (File → Open…)")
+        return True
+
     # -- autosave and recovery ----------------------------------------------------------------
     def autosave(self) -> bool:
         """Write the autosave copy if anything changed since the last one."""

@@ -40,7 +40,7 @@ _SLIDER_STEPS = 400
 _DATA_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".parquet", ".pq"}
 _RECENT_MAX = 8
 #: Errors from these actions are shown in a dialog; others (inline edits) in the status bar.
-_DIALOG_TITLES = {"Open data", "Open session", "Run", "Load knowledge", "Save session",
+_DIALOG_TITLES = {"Open data", "Open session", "Open result", "Run", "Load knowledge", "Save session",
                   "Save knowledge", "Export", "Knowledge", "Stages"}
 
 SHORTCUTS = (
@@ -213,6 +213,8 @@ class MainWindow(QMainWindow):
                           "Open a CSV, TSV or Parquet table")
         self.act_open_session = a("actionOpenSession", "Open session…", self.choose_session,
                                   "Ctrl+Shift+O", "Open a saved .edgewise session")
+        self.act_open_result = a("actionOpenResult", "Open result…", self.choose_result,
+                                 None, "Show a saved result (.json) without its data")
         self.act_save = a("actionSave", "Save", self.save, QKeySequence.Save,
                           "Save the session (data path, settings, knowledge, result, layout)")
         self.act_save_as = a("actionSaveAs", "Save session as…", self.save_as,
@@ -420,7 +422,7 @@ class MainWindow(QMainWindow):
         bar = self.menuBar()
         m = bar.addMenu("&File")
         m.setObjectName("fileMenu")
-        for act in (self.act_open, self.act_open_session):
+        for act in (self.act_open, self.act_open_session, self.act_open_result):
             m.addAction(act)
         self.recent_menu = m.addMenu("Open recent")
         self.recent_menu.setObjectName("recentMenu")
@@ -675,10 +677,12 @@ class MainWindow(QMainWindow):
         return started
 
     def open_path(self, path) -> bool:
-        """Open a data table or a ``.edgewise`` session, by its suffix."""
+        """Open a data table, a ``.edgewise`` session or a ``.json`` result, by its suffix."""
         path = str(path)
         if Path(path).suffix.lower() == _session.SUFFIX:
             ok = self.session.open_session(path)
+        elif Path(path).suffix.lower() == ".json":
+            ok = self.session.open_result(path)
         else:
             ok = self.session.open_data(path)
             if ok:
@@ -725,6 +729,15 @@ class MainWindow(QMainWindow):
             return
         path, _ = QFileDialog.getOpenFileName(self, "Open session", self._dialog_folder(),
                                               "Edgewise session (*.edgewise)")
+        if path:
+            self._remember_folder(path)
+            self.open_path(path)
+
+    def choose_result(self):
+        if not self._may_discard():
+            return
+        path, _ = QFileDialog.getOpenFileName(self, "Open result", self._dialog_folder(),
+                                              "Edgewise result (*.json)")
         if path:
             self._remember_folder(path)
             self.open_path(path)

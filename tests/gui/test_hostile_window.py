@@ -66,6 +66,15 @@ def session_with(change, name="s.edgewise"):
     return make
 
 
+def result_with(change, name="r.json"):
+    """A result file: the good session's result with ``change(doc)`` applied."""
+    def make(tmp):
+        doc = json.loads(json.dumps(_good_session_doc()["result"]))
+        change(doc)
+        (tmp / name).write_text(json.dumps(doc), encoding="utf-8")
+    return make
+
+
 def setter(*path_and_value):
     *path, value = path_and_value
 
@@ -99,8 +108,9 @@ def loop(tmp):
     os.symlink(tmp / "s.edgewise", tmp / "b.edgewise")
 
 
-DATA, DATA_RUN, KNOWLEDGE, SESSION = "data", "data then run", "knowledge", "session"
-S = "s.edgewise"
+DATA, DATA_RUN, KNOWLEDGE, SESSION, RESULT = ("data", "data then run", "knowledge",
+                                             "session", "result")
+S, R = "s.edgewise", "r.json"
 
 CASES = [
     # -- data files (File → Open…) ------------------------------------------------------------
@@ -199,6 +209,28 @@ CASES = [
      r"s\.edgewise: .*variables"),
     ("result-missing-edges", session_with(lambda d: d["result"].pop("edges")), SESSION, S,
      r"s\.edgewise: .*edges"),
+    # -- result files (File → Open result…) ---------------------------------------------------
+    ("result-file-empty", text("", R), RESULT, R, r"r\.json: not valid JSON"),
+    ("result-file-is-a-table", text(corpus.GOOD_CSV, R), RESULT, R, r"r\.json: not valid JSON"),
+    ("result-file-deep", text("[" * 5000 + "]" * 5000, R), RESULT, R, r"r\.json: nested"),
+    ("result-file-long-number", result_with(setter("seed", 10 ** 100)), RESULT, R,
+     r"r\.json: .*digits"),
+    ("result-file-huge", sparse(MAX_DOCUMENT_BYTES + 1, R), RESULT, R,
+     r"r\.json: .*MiB is larger than a result file"),
+    ("result-file-device", link("/dev/zero", R), RESULT, R, r"r\.json: is not a regular file"),
+    ("result-file-folder", lambda t: (t / R).mkdir(), RESULT, R, r"r\.json: is a folder"),
+    ("result-file-missing", None, RESULT, R, r"r\.json: result file not found"),
+    ("result-file-is-a-session", session_with(lambda d: None, R), RESULT, R,
+     r"r\.json: 'format' is not 'edgewise-result'"),
+    ("result-file-edge-unknown-variable", result_with(setter("edges", 0, "to", "zzz")),
+     RESULT, R, r"r\.json: .*zzz"),
+    ("result-file-evidence-as-text", result_with(setter("evidence", "tests", "many")),
+     RESULT, R, r"r\.json: 'evidence\.tests' must be a list"),
+    ("result-file-seed-text", result_with(setter("seed", "seven")), RESULT, R,
+     r"r\.json: 'seed' must be a whole number"),
+    ("result-file-knowledge-cycle",
+     result_with(setter("knowledge", "locked_directions", [["a", "b"], ["b", "a"]])),
+     RESULT, R, r"r\.json: .*(cycle|both)"),
 ]
 
 _GOOD_DOC: dict = {}
@@ -265,7 +297,8 @@ def answer_file_dialog(monkeypatch, path):
 
 
 _ACTIONS = {DATA: ("act_open", "Open data"), SESSION: ("act_open_session", "Open session"),
-            KNOWLEDGE: ("act_load_knowledge", "Load knowledge"), DATA_RUN: ("act_open", "Run")}
+            KNOWLEDGE: ("act_load_knowledge", "Load knowledge"), DATA_RUN: ("act_open", "Run"),
+            RESULT: ("act_open_result", "Open result")}
 # a command-line option left in a message (the window names its controls instead; an option
 # the window has no control for is said to be the command line's)
 _OPTION = re.compile(r"(?<!option )--[a-z]")
@@ -326,6 +359,21 @@ def test_a_bad_file_gets_one_dialog_and_the_window_carries_on(
     assert len(dialogs) == 1
     # input files unchanged, nothing written beside them (not even a temporary file)
     assert _snapshot(folder) == before
+
+
+def test_a_good_result_file_opens_and_shows_its_diagram(qtbot, window, dialogs, tmp_path,
+                                                        monkeypatch):
+    (tmp_path / "r.json").write_text(json.dumps(_good_session_doc()["result"]),
+                                     encoding="utf-8")
+    answer_file_dialog(monkeypatch, tmp_path / "r.json")
+    window.act_open_result.trigger()
+    s = window.session
+    assert s.result is not None and s.dataset is None and not s.stale and not dialogs
+    assert {e.pair for e in s.result.edges} == set(window.canvas.edges)
+    assert s.knowledge.forbidden == (("a", "e"),)
+    window.act_run.trigger()  # no data: Run says what to open
+    qtbot.waitUntil(lambda: len(dialogs) == 1, timeout=5_000)
+    assert dialogs[0][0] == "Run" and "File → Open" in dialogs[0][1]
 
 
 def test_the_window_corpus_has_at_least_thirty_kinds():
