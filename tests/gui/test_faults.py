@@ -146,3 +146,26 @@ def test_a_result_that_arrives_after_stop_is_thrown_away(collider_csv):
     s.stop_run()
     s.fail_run(job, "late failure")
     assert s.status == "stopped" and s.result is previous
+
+
+def test_a_search_too_large_for_memory_is_refused_in_words_of_the_window(
+        qtbot, window, dialogs, collider_csv, monkeypatch):
+    # the engine's memory estimate (discovery/resources.py) refuses before allocating; the
+    # window tells the user which control chooses fewer columns
+    import discovery.resources
+    s = window.session
+    assert window.open_path(collider_csv)
+    monkeypatch.setattr(discovery.resources, "available_memory", lambda: 1000)
+    window.run()
+    wait_idle(qtbot, window)
+    qtbot.waitUntil(lambda: len(dialogs) > 0, timeout=5_000)
+    assert s.status == "failed" and s.result is None
+    (title, message), = dialogs
+    assert title == "Run" and "\n" not in message
+    assert "need about" in message and "of memory" in message
+    assert "choose fewer columns (untick them in the Variables panel)" in message
+    assert "--" not in message
+    monkeypatch.undo()
+    window.run()
+    wait_idle(qtbot, window)
+    assert s.status == "done" and s.result is not None
