@@ -306,6 +306,8 @@ class Session:
         #: width over height of the view that shows the diagram (set by the canvas), so a
         #: force-directed layout fills it; None: the layout's default
         object.__setattr__(self, "view_aspect", None)
+        #: the result file shown without its data (File → Open result…), else None
+        object.__setattr__(self, "result_path", None)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -435,6 +437,7 @@ class Session:
         knowledge = self.knowledge
         if not knowledge.variables <= set(dataset.variables):
             knowledge = Knowledge()
+        object.__setattr__(self, "result_path", None)
         self._reset_history()
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_result_key", None)
@@ -957,6 +960,7 @@ class Session:
         except DiscoveryError as err:
             self._error(err, "Open session")
             return False
+        object.__setattr__(self, "result_path", None)
         self._reset_history()
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_job", None)
@@ -1006,6 +1010,7 @@ class Session:
         object.__setattr__(self, "_auto_layout", False)
         object.__setattr__(self, "_data_changed", False)
         object.__setattr__(self, "last_run_seconds", None)
+        object.__setattr__(self, "result_path", str(Path(path).resolve()))
         self.update({"data_path": None, "dataset": None, "included": result.variables,
                      "settings": result.settings, "knowledge": result.knowledge,
                      "result": result, "status": "done", "progress": None, "selection": (),

@@ -169,6 +169,7 @@ class MainWindow(QMainWindow):
         ev.data_path.connect(self._update_title)
         ev.dataset.connect(self._on_dataset)
         ev.result.connect(self._on_result)
+        ev.result.connect(self._update_title)  # a result file opened without data
         for name in ("settings", "knowledge", "included"):
             getattr(ev, name).connect(self._inputs_changed)
         self.session.notifications.posted.connect(self._on_notification)
@@ -599,7 +600,8 @@ class MainWindow(QMainWindow):
     def _update_title(self, _=None):
         s = self.session
         name = Path(s.session_path).name if s.session_path else (
-            _data_title(s.data_path) if s.data_path else "no data")
+            _data_title(s.data_path) if s.data_path else
+            f"{Path(s.result_path).name} (a result, no data)" if s.result_path else "no data")
         self.setWindowTitle(f"{name}{' •' if s.dirty else ''} — Edgewise")
 
     def _on_notification(self, note):

@@ -371,6 +371,7 @@ def test_a_good_result_file_opens_and_shows_its_diagram(qtbot, window, dialogs, 
     assert s.result is not None and s.dataset is None and not s.stale and not dialogs
     assert {e.pair for e in s.result.edges} == set(window.canvas.edges)
     assert s.knowledge.forbidden == (("a", "e"),)
+    assert window.windowTitle().startswith("r.json (a result, no data)")
     window.act_run.trigger()  # no data: Run says what to open
     qtbot.waitUntil(lambda: len(dialogs) == 1, timeout=5_000)
     assert dialogs[0][0] == "Run" and "File → Open" in dialogs[0][1]
