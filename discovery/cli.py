@@ -12,6 +12,7 @@ import os
 import sys
 import time
 import warnings
+from concurrent.futures import BrokenExecutor
 from pathlib import Path
 
 from .exceptions import DiscoveryError
@@ -209,6 +210,11 @@ def main(argv=None) -> int:
         except OSError:
             pass
         return 0
+    except BrokenExecutor as err:  # a worker process died (killed, out of memory)
+        print(f"edgewise {args.command}: error: a worker process stopped before it finished "
+              f"({' '.join(str(err).split())[:160]}); nothing was written — run again with "
+              "fewer --jobs", file=sys.stderr)
+        return 1
     except Exception as err:  # the one place that turns a bug into one line, not a traceback
         print(f"edgewise {args.command}: unexpected error ({type(err).__name__}: {err}); "
               "please report it with the command you ran", file=sys.stderr)

@@ -39,6 +39,7 @@ import numpy as np
 from discovery import __version__ as ENGINE_VERSION
 from discovery.exceptions import (DiscoveryError, KnowledgeError, ResultFormatError,
                                   SearchCancelled, SettingsError)
+from discovery.files import parse_json_checked, read_text_checked, write_text_atomic
 from discovery.independence import PValueCache
 from discovery.knowledge import Knowledge
 from discovery.result import SearchResult
@@ -49,7 +50,8 @@ from ._events import EventGroup
 from ._words import window_words
 from ._notifications import NotificationChannel
 
-__all__ = ["Session", "SearchJob", "AnalysisJob", "ANALYSES", "FORMAT", "VERSION", "STATUSES", "FIELDS",
+__all__ = ["Session", "SearchJob", "AnalysisJob", "ANALYSES", "ArrangePlan", "FORMAT",
+           "VERSION", "STATUSES", "FIELDS",
            "restrict_knowledge"]
 
 FORMAT = "edgewise-session"
@@ -96,6 +98,8 @@ _INPUT_FIELDS = {"settings", "knowledge", "included"}
 _SAVED_FIELDS = {"settings", "knowledge", "included", "result", "positions", "overlay",
                  "data_path", "treatment", "outcome", "planned", "sweep", "support"}
 _LOG_LINES = 2000
+#: Node positions in a session file beyond this (canvas units) are refused as damage.
+_MAX_COORDINATE = 1e6
 _STOP_CHUNK = 2048  # a batch is split so that a stop is seen within one chunk
 
 
@@ -275,6 +279,32 @@ class AnalysisJob:
         return record, seen
 
 
+@dataclasses.dataclass(frozen=True)
+class ArrangePlan:
+    """A snapshot of what one Arrange needs; :meth:`compute` runs on any thread.
+
+    Attributes
+    ----------
+    token : int
+        The request's number; :meth:`Session.apply_arrange` applies only the latest.
+    """
+
+    token: int
+    label: str
+    style: str
+    variables: tuple
+    edges: tuple
+    directed: tuple
+    stages: tuple
+    sizes: Mapping = dataclasses.field(default_factory=dict)
+    aspect: float | None = None
+
+    def compute(self) -> dict:
+        """The layout, ``{name: (x, y)}`` (no session state is touched)."""
+        return _layout.arrange(self.variables, self.edges, self.stages, style=self.style,
+                               directed=self.directed, sizes=self.sizes, aspect=self.aspect)
+
+
 class _StoppableCache:
     """The session's cache, answering big batches in chunks and checking the stop flag
     between them, so that Stop is honoured within one chunk (well under a second). Every
@@ -352,6 +382,8 @@ class Session:
         object.__setattr__(self, "_auto_layout", True)
         # the layout style Arrange last used ("auto", "layered" or "force")
         object.__setattr__(self, "layout_style", "auto")
+        # counts Arrange requests: only the latest one's layout is applied
+        object.__setattr__(self, "_arrange_token", 0)
         # True while the result shown was found on other data than the file now open (a
         # session whose data file changed): stale whatever the inputs, until a run
         object.__setattr__(self, "_data_changed", False)
@@ -363,6 +395,8 @@ class Session:
         #: width over height of the view that shows the diagram (set by the canvas), so a
         #: force-directed layout fills it; None: the layout's default
         object.__setattr__(self, "view_aspect", None)
+        #: the result file shown without its data (File → Open result…), else None
+        object.__setattr__(self, "result_path", None)
 
     # -- fields -------------------------------------------------------------------------------
     def __getattr__(self, name):
@@ -507,6 +541,7 @@ class Session:
         knowledge = self.knowledge
         if not knowledge.variables <= set(dataset.variables):
             knowledge = Knowledge()
+        object.__setattr__(self, "result_path", None)
         self._reset_history()
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_result_key", None)
@@ -733,29 +768,56 @@ class Session:
             is remembered for later layouts (the first diagram of a new run, stage edits).
             By default the last one used.
         """
+        plan = self.plan_arrange(style)
+        if plan is not None:
+            self.apply_arrange(plan, plan.compute())
+
+    def plan_arrange(self, style: str | None = None) -> "ArrangePlan | None":
+        """Snapshot what a fresh layout needs (see :meth:`arrange`); the plan's
+        :meth:`~ArrangePlan.compute` may run on any thread (a dense diagram's force-directed
+        layout takes seconds), then :meth:`apply_arrange` puts it in place. None (with a
+        message) for an unknown style."""
         if style is not None:
             if style not in _layout.STYLES:
                 self._error(f"layout must be one of {_layout.STYLES}; got {style!r}",
                             "Arrange")
-                return
+                return None
             object.__setattr__(self, "layout_style", style)
+        object.__setattr__(self, "_arrange_token", self._arrange_token + 1)
         label = {"auto": "Arrange", "layered": "Arrange in layers",
                  "force": "Arrange force-directed"}[self.layout_style]
-        self._edit({"positions": self._arranged()}, label)
+        return ArrangePlan(self._arrange_token, label, self.layout_style,
+                           *self._layout_inputs(), sizes=dict(self.node_sizes),
+                           aspect=self.view_aspect)
+
+    def apply_arrange(self, plan: "ArrangePlan", positions: Mapping) -> bool:
+        """Put a computed layout in place (one undoable step), unless a later Arrange was
+        asked for or the diagram changed meanwhile; True when it was applied."""
+        if (plan.token != self._arrange_token
+                or (plan.variables, plan.edges, plan.directed, plan.stages)
+                != self._layout_inputs()):
+            return False
+        self._edit({"positions": positions}, plan.label)
         self._laid_out()
+        return True
 
     def _laid_out(self) -> None:
         """A fresh layout is in place: tell the views (the canvas fits the view to it)."""
         self.update({"layouts": self.layouts + 1})
 
-    def _arranged(self, knowledge: Knowledge | None = None) -> dict:
+    def _layout_inputs(self, knowledge: Knowledge | None = None) -> tuple:
+        """(variables, edges, arrows, stages): what a layout of the diagram depends on."""
         knowledge = knowledge or self.knowledge
-        edges = [(e.source, e.target) for e in self.result.edges] if self.result else []
-        directed = ([(e.source, e.target) for e in self.result.edges
-                     if e.kind == "directed"] if self.result else [])
-        return _layout.arrange(self.variables, edges, knowledge.stages,
-                               style=self.layout_style, directed=directed,
-                               sizes=self.node_sizes, aspect=self.view_aspect)
+        edges = self.result.edges if self.result else ()
+        return (tuple(self.variables), tuple((e.source, e.target) for e in edges),
+                tuple((e.source, e.target) for e in edges if e.kind == "directed"),
+                tuple(tuple(g) for g in knowledge.stages))
+
+    def _arranged(self, knowledge: Knowledge | None = None) -> dict:
+        variables, edges, directed, stages = self._layout_inputs(knowledge)
+        return _layout.arrange(variables, edges, stages, style=self.layout_style,
+                               directed=directed, sizes=self.node_sizes,
+                               aspect=self.view_aspect)
 
     def _ensure_positions(self) -> None:
         missing = [v for v in self.variables if v not in self.positions]
@@ -829,6 +891,12 @@ class Session:
         if self.dataset is None:
             self._error("no data open; open a CSV, TSV or Parquet file first (File → Open "
                         "data)", "Run")
+            return None
+        if len(self.dataset.variables) < 2:
+            self._error(f"{Path(self.data_path or self.dataset.source).name}: "
+                        f"{len(self.dataset.variables)} usable column(s) (the Variables panel "
+                        "says why the others are left out); a search needs at least 2 — "
+                        "open another table (File → Open…)", "Run")
             return None
         if len(self.included) < 2:
             self._error("a search needs at least 2 included variables; tick more in the "
@@ -1148,7 +1216,7 @@ class Session:
         if path.suffix != SUFFIX:
             path = path.with_name(path.name + SUFFIX)
         try:
-            _write_atomic(path, json.dumps(self.to_dict(base=path.resolve().parent),
+            write_text_atomic(path, json.dumps(self.to_dict(base=path.resolve().parent),
                                            indent=1, ensure_ascii=False) + "\n")
         except OSError as err:
             self._error(f"{path}: cannot write the session ({err.strerror or err}); choose "
@@ -1170,6 +1238,7 @@ class Session:
         except DiscoveryError as err:
             self._error(err, "Open session")
             return False
+        object.__setattr__(self, "result_path", None)
         self._reset_history()
         object.__setattr__(self, "cache", PValueCache())
         object.__setattr__(self, "_job", None)
@@ -1197,6 +1266,41 @@ class Session:
             self.notifications.warning(window_words(text), title="Open session")
         return True
 
+    def open_result(self, path) -> bool:
+        """Show a saved result file (written by ``edgewise discover --out`` or Export →
+        Result as JSON) as a new workspace without data: its diagram, evidence, settings and
+        knowledge. To run again, open the data.
+
+        Nothing changes unless the whole file is valid.
+        """
+        from discovery.result import load_result
+        try:
+            result = load_result(path)
+        except DiscoveryError as err:
+            self._error(err, "Open result")
+            return False
+        self._reset_history()
+        object.__setattr__(self, "cache", PValueCache())
+        object.__setattr__(self, "_job", None)
+        object.__setattr__(self, "_result_key", (
+            result.settings, restrict_knowledge(result.knowledge, result.variables),
+            tuple(result.variables)))
+        object.__setattr__(self, "_auto_layout", False)
+        object.__setattr__(self, "_data_changed", False)
+        object.__setattr__(self, "last_run_seconds", None)
+        object.__setattr__(self, "result_path", str(Path(path).resolve()))
+        self.update({"data_path": None, "dataset": None, "included": result.variables,
+                     "settings": result.settings, "knowledge": result.knowledge,
+                     "result": result, "status": "done", "progress": None, "selection": (),
+                     "positions": {}, "session_path": None, "layouts": self.layouts + 1})
+        self._ensure_positions()
+        self.update({"stale": self._compute_stale()})
+        self.update({"dirty": False})
+        object.__setattr__(self, "_autosaved_generation", self._generation)
+        self.append_log(f"result opened from {path}: {run_counts(result)}; to run again, "
+                        "open its data (File → Open…)")
+        return True
+
     # -- autosave and recovery ----------------------------------------------------------------
     def autosave(self) -> bool:
         """Write the autosave copy if anything changed since the last one."""
@@ -1208,7 +1312,7 @@ class Session:
         doc["autosave_of"] = self.session_path
         try:
             self.autosave_path.parent.mkdir(parents=True, exist_ok=True)
-            _write_atomic(self.autosave_path, json.dumps(doc, ensure_ascii=False))
+            write_text_atomic(self.autosave_path, json.dumps(doc, ensure_ascii=False))
         except OSError:
             return False
         object.__setattr__(self, "_autosaved_generation", self._generation)
@@ -1230,14 +1334,19 @@ class Session:
         or None when there is none or it is unreadable."""
         path = Path(autosave_path)
         try:
-            doc = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, UnicodeDecodeError, json.JSONDecodeError):
+            doc = parse_json_checked(
+                read_text_checked(path, what="autosave file", error=ResultFormatError),
+                source=str(path), error=ResultFormatError)
+        except ResultFormatError:
             return None
         if not isinstance(doc, dict) or doc.get("format") != FORMAT:
             return None
-        data = doc.get("data") or {}
-        return {"saved": doc.get("saved"), "data": data.get("path"),
-                "session": doc.get("autosave_of"), "path": str(path)}
+        data = doc.get("data") if isinstance(doc.get("data"), dict) else {}
+
+        def text(value):
+            return value if isinstance(value, str) and "\0" not in value else None
+        return {"saved": text(doc.get("saved")), "data": text(data.get("path")),
+                "session": text(doc.get("autosave_of")), "path": str(path)}
 
     def recover(self) -> bool:
         """Open the autosave copy as the current (unsaved) workspace."""
@@ -1261,45 +1370,43 @@ def run_counts(result: SearchResult) -> str:
             f"{c.get('tests', 0)} tests, {c.get('tests_from_cache', 0)} from the cache")
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-
-
 def _read_session(path: Path) -> tuple[dict, list[str]]:
-    """Parse and validate a session file; return field values and warnings."""
-    from discovery.data import read_table
+    """Parse and validate a session file; return field values and warnings.
 
+    Every way a file can be wrong (not a regular file, too large, nested too deep, a field of
+    the wrong type, a damaged embedded result) raises one :class:`ResultFormatError` line.
+    """
     label = str(path)
 
     def fail(what):
         raise ResultFormatError(f"{label}: {what}")
 
+    text = read_text_checked(path, what="session file", error=ResultFormatError)
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        fail("session file not found; check the path")
-    except IsADirectoryError:
-        fail("is a folder, not a session file; choose a .edgewise file")
-    except (OSError, UnicodeDecodeError) as err:
-        fail(f"cannot be read ({getattr(err, 'strerror', None) or err}); choose a .edgewise "
-             "file")
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as err:
-        fail(f"not a session file (invalid JSON at line {err.lineno}: {err.msg}); choose a "
-             ".edgewise file saved by Edgewise")
+        doc = parse_json_checked(text, source=label, error=ResultFormatError)
+    except ResultFormatError as err:
+        raise ResultFormatError(f"{err}; not a session file — choose a .edgewise file saved "
+                                "by Edgewise") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
         fail(f"not an Edgewise session ('format' is not {FORMAT!r}); choose a .edgewise "
              "file saved by Edgewise")
     if doc.get("version") != VERSION:
         fail(f"session version {doc.get('version')!r} is not supported (this Edgewise reads "
              f"version {VERSION}); open it with the Edgewise that saved it")
+    try:
+        return _session_fields(doc, path, fail)
+    except DiscoveryError:
+        raise
+    except (TypeError, KeyError, ValueError, AttributeError, IndexError) as err:
+        # a field nested where no check looked: still one line, never a traceback
+        fail(f"the file is damaged ({type(err).__name__}: {str(err)[:120]}); open an older "
+             "copy or start again from the data")
+
+
+def _session_fields(doc: dict, path: Path, fail) -> tuple[dict, list[str]]:
+    from discovery.data import read_table
+
+    label = str(path)
     for name, kind in (("settings", dict), ("knowledge", dict), ("included", list),
                        ("positions", dict)):
         if not isinstance(doc.get(name), kind):
@@ -1317,12 +1424,20 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
     for name, xy in doc["positions"].items():
         if not (isinstance(xy, list) and len(xy) == 2
                 and all(isinstance(c, (int, float)) and not isinstance(c, bool)
-                        and np.isfinite(c) for c in xy)):
-            fail(f"position of {name!r} must be two numbers [x, y]; got {xy!r}")
+                        and np.isfinite(c) and abs(c) <= _MAX_COORDINATE for c in xy)):
+            fail(f"position of {name!r} must be two numbers [x, y] within "
+                 f"±{_MAX_COORDINATE:g}; got {str(xy)[:60]}")
         positions[name] = (float(xy[0]), float(xy[1]))
     included = doc["included"]
     if not all(isinstance(v, str) for v in included):
         fail("'included' must be a list of variable names")
+    for name, kinds, what in (("overlay", (bool,), "true or false"),
+                              ("selection", (list,), "a list of variable names"),
+                              ("result_inputs", (dict,), "a table"),
+                              ("autosave_of", (str,), "a path")):
+        if doc.get(name) is not None and not isinstance(doc[name], kinds):
+            fail(f"'{name}' must be {what}; got {type(doc[name]).__name__} — the file is "
+                 "damaged, open an older copy or start again from the data")
     warns = []
     dataset = None
     data_path = None
@@ -1331,6 +1446,12 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
     if data is not None:
         if not isinstance(data, dict) or not isinstance(data.get("path"), str):
             fail("'data' must be a table with the data file's 'path'")
+        for key in ("path", "relative", "sha256"):
+            value = data.get(key)
+            if value is not None and (not isinstance(value, str) or "\0" in value
+                                      or len(value) > 4096):
+                fail(f"'data.{key}' must be a path or fingerprint text; the file is damaged "
+                     "— open an older copy, or open the data (File → Open data)")
         candidates = []
         if isinstance(data.get("relative"), str):
             candidates.append(path.resolve().parent / data["relative"])
@@ -1372,14 +1493,20 @@ def _read_session(path: Path) -> tuple[dict, list[str]]:
         inputs = doc.get("result_inputs")
         if isinstance(inputs, dict):
             try:
+                if not (isinstance(inputs.get("settings"), dict)
+                        and isinstance(inputs.get("knowledge"), dict)
+                        and isinstance(inputs.get("included"), list)
+                        and all(isinstance(v, str) for v in inputs["included"])):
+                    raise TypeError("'settings', 'knowledge' (tables) and 'included' (a list "
+                                    "of names) are needed")
                 result_key = (SearchSettings.from_dict(inputs["settings"]),
                               Knowledge.from_dict(inputs["knowledge"], source=label),
                               tuple(inputs["included"]))
-            except (KeyError, TypeError, SettingsError) as err:
-                fail(f"'result_inputs' is damaged ({err})")
+            except (KeyError, TypeError, SettingsError, KnowledgeError) as err:
+                fail(f"'result_inputs' is damaged ({err}); open an older copy or run again")
         else:
             result_key = (result.settings, result.knowledge, tuple(result.variables))
-    selection = tuple(v for v in doc.get("selection", ()) if isinstance(v, str)
+    selection = tuple(v for v in doc.get("selection") or () if isinstance(v, str)
                       and v in variables)[:2]
     roles = doc.get("controls") if isinstance(doc.get("controls"), dict) else {}
     treatment, outcome = (roles.get(k) if roles.get(k) in variables else None

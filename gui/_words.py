@@ -35,6 +35,10 @@ _PHRASES = (
      lambda m: f"untick {m.group(1)} in the Variables panel"),
     (r"(?:e\.g\. )?(?:with|using) --(?:columns|exclude)(?: or --(?:columns|exclude))?",
      lambda m: "by unticking it in the Variables panel"),
+    (r"\(--(?:columns|exclude) or --(?:columns|exclude)\)",
+     lambda m: "(untick them in the Variables panel)"),
+    (r"--(?:columns|exclude) or --(?:columns|exclude)",
+     lambda m: "the include ticks of the Variables panel"),
     (r"lower --max-depth to (\d+)", lambda m: f"set the Depth box to {m.group(1)}"),
     (r"--test ([a-z-]+)", lambda m: f"the Test choice “{test_label(m.group(1))}”"),
     (r"--alpha ([0-9.eE-]+)", lambda m: f"α {m.group(1)} in the α box"),
@@ -52,6 +56,7 @@ _CONTROLS = {
     "missing": "the missing-values choice of the Variables panel",
 }
 
+_JOINING_WORDS = {"or", "and", "to", "with", "for", "in", "of", "is", "are"}
 _OPTION = re.compile(r"`?--([a-z][a-z-]*)`?((?: [^\s,;:)]+)?)")
 
 
@@ -73,6 +78,9 @@ def window_words(message: str) -> str:
 
     def option(m):
         name, value = m.group(1), m.group(2)
+        if value.strip() in _JOINING_WORDS:  # "--columns or ...": a word of the sentence
+            return (_CONTROLS.get(name) or f"the command line's option --{name} (not in the "
+                    "window yet)") + value
         if name in _CONTROLS:
             return _CONTROLS[name]
         return f"the command line's option --{name}{value} (not in the window yet)"

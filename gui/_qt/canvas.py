@@ -681,6 +681,9 @@ class GraphCanvas(QGraphicsView):
     def __init__(self, session, parent=None):
         super().__init__(parent)
         self.session = session
+        #: what the context menu's Arrange calls (the window sets one that works off the
+        #: GUI thread); the session's own by default
+        self.arrange = session.arrange
         self.setObjectName("canvas")
         self.node_font = QFont(self.font())
         self.node_font.setPointSizeF(10)
@@ -1285,11 +1288,12 @@ class GraphCanvas(QGraphicsView):
                         lambda _=False, n=item.name, inc=inc: s.set_included(n, not inc))
             controls_panel.add_control_actions(menu, s, item.name)
         else:
-            for text, slot in (("Arrange again", lambda: s.arrange()),
+            arrange = self.arrange  # the window's: lays out off the GUI thread
+            for text, slot in (("Arrange again", lambda: arrange()),
                                ("Arrange (layered by stage, else force-directed)",
-                                lambda: s.arrange("auto")),
-                               ("Arrange in layers", lambda: s.arrange("layered")),
-                               ("Arrange force-directed", lambda: s.arrange("force")),
+                                lambda: arrange("auto")),
+                               ("Arrange in layers", lambda: arrange("layered")),
+                               ("Arrange force-directed", lambda: arrange("force")),
                                ("Fit to view", self.request_fit),
                                ("Find a variable… (Ctrl+F)", self.show_find)):
                 menu.addAction(text).triggered.connect(lambda _=False, f=slot: f())

@@ -32,7 +32,7 @@ from .controls_panel import ControlsPanel
 from .inspector import Inspector
 from .panels import StagesEditor, VariablesPanel
 from .style import signals_blocked
-from .worker import SearchRunner
+from .worker import ArrangeRunner, SearchRunner
 
 #: The α slider spans this range on a log scale; the number box accepts anything the
 #: constraint table allows (0 < α < 1).
@@ -41,7 +41,7 @@ _SLIDER_STEPS = 400
 _DATA_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".parquet", ".pq"}
 _RECENT_MAX = 8
 #: Errors from these actions are shown in a dialog; others (inline edits) in the status bar.
-_DIALOG_TITLES = {"Open data", "Open session", "Run", "Load knowledge", "Save session",
+_DIALOG_TITLES = {"Open data", "Open session", "Open result", "Run", "Load knowledge", "Save session",
                   "Save knowledge", "Export", "Knowledge", "Stages"}
 
 SHORTCUTS = (
@@ -130,8 +130,10 @@ class MainWindow(QMainWindow):
         self.setAcceptDrops(True)
         self.resize(QSize(1360, 860))
         self.runner = SearchRunner(self.session, self)
+        self.arranger = ArrangeRunner(self.session, self)  # layouts off the GUI thread
 
         self.canvas = GraphCanvas(self.session)
+        self.canvas.arrange = self.arrange
         self.canvas.setAcceptDrops(False)
         self.canvas.viewport().setAcceptDrops(False)
         self.setCentralWidget(self.canvas)
@@ -169,6 +171,7 @@ class MainWindow(QMainWindow):
         ev.data_path.connect(self._update_title)
         ev.dataset.connect(self._on_dataset)
         ev.result.connect(self._on_result)
+        ev.result.connect(self._update_title)  # a result file opened without data
         for name in ("settings", "knowledge", "included"):
             getattr(ev, name).connect(self._inputs_changed)
         self.session.notifications.posted.connect(self._on_notification)
@@ -213,6 +216,8 @@ class MainWindow(QMainWindow):
                           "Open a CSV, TSV or Parquet table")
         self.act_open_session = a("actionOpenSession", "Open session…", self.choose_session,
                                   "Ctrl+Shift+O", "Open a saved .edgewise session")
+        self.act_open_result = a("actionOpenResult", "Open result…", self.choose_result,
+                                 None, "Show a saved result (.json) without its data")
         self.act_save = a("actionSave", "Save", self.save, QKeySequence.Save,
                           "Save the session (data path, settings, knowledge, result, layout)")
         self.act_save_as = a("actionSaveAs", "Save session as…", self.save_as,
@@ -235,17 +240,17 @@ class MainWindow(QMainWindow):
                              ["Ctrl++", "Ctrl+="])
         self.act_zoom_out = a("actionZoomOut", "Zoom out", lambda: self.canvas.zoom(0.8),
                               "Ctrl+-")
-        self.act_arrange = a("actionArrange", "Arrange", s.arrange, "Ctrl+L",
+        self.act_arrange = a("actionArrange", "Arrange", self.arrange, "Ctrl+L",
                              "Lay the diagram out again, in the layout chosen last (at first: "
                              "layered by stage, else force-directed)")
         self.act_arrange_auto = a("actionArrangeAuto", "Layered by stage, else force-directed",
-                                  lambda: s.arrange("auto"))
+                                  lambda: self.arrange("auto"))
         self.act_arrange_layered = a("actionArrangeLayered", "In layers (by stage, else by "
-                                     "arrow direction)", lambda: s.arrange("layered"),
+                                     "arrow direction)", lambda: self.arrange("layered"),
                                      None, "Columns left to right: stages, or without stages "
                                      "the arrows' direction (every arrow points right)")
         self.act_arrange_force = a("actionArrangeForce", "Force-directed",
-                                   lambda: s.arrange("force"))
+                                   lambda: self.arrange("force"))
         self.act_find = a("actionFind", "Find a variable…", self.canvas.show_find,
                           QKeySequence.Find, "Find a variable by name and focus on its "
                                              "neighbours (Esc in the box ends the focus)")
@@ -434,7 +439,7 @@ class MainWindow(QMainWindow):
         bar = self.menuBar()
         m = bar.addMenu("&File")
         m.setObjectName("fileMenu")
-        for act in (self.act_open, self.act_open_session):
+        for act in (self.act_open, self.act_open_session, self.act_open_result):
             m.addAction(act)
         self.recent_menu = m.addMenu("Open recent")
         self.recent_menu.setObjectName("recentMenu")
@@ -612,7 +617,8 @@ class MainWindow(QMainWindow):
     def _update_title(self, _=None):
         s = self.session
         name = Path(s.session_path).name if s.session_path else (
-            _data_title(s.data_path) if s.data_path else "no data")
+            _data_title(s.data_path) if s.data_path else
+            f"{Path(s.result_path).name} (a result, no data)" if s.result_path else "no data")
         self.setWindowTitle(f"{name}{' •' if s.dirty else ''} — Edgewise")
 
     def _on_notification(self, note):
@@ -682,11 +688,20 @@ class MainWindow(QMainWindow):
         self._rerun_after_stop = False
         return self.runner.stop()
 
+    def arrange(self, style=None) -> bool:
+        """Lay the diagram out again on a worker thread (the window keeps answering)."""
+        started = self.arranger.start(style)
+        if started:
+            self.statusBar().showMessage("Arranging…", 2000)
+        return started
+
     def open_path(self, path) -> bool:
-        """Open a data table or a ``.edgewise`` session, by its suffix."""
+        """Open a data table, a ``.edgewise`` session or a ``.json`` result, by its suffix."""
         path = str(path)
         if Path(path).suffix.lower() == _session.SUFFIX:
             ok = self.session.open_session(path)
+        elif Path(path).suffix.lower() == ".json":
+            ok = self.session.open_result(path)
         else:
             ok = self.session.open_data(path)
             if ok:
@@ -733,6 +748,15 @@ class MainWindow(QMainWindow):
             return
         path, _ = QFileDialog.getOpenFileName(self, "Open session", self._dialog_folder(),
                                               "Edgewise session (*.edgewise)")
+        if path:
+            self._remember_folder(path)
+            self.open_path(path)
+
+    def choose_result(self):
+        if not self._may_discard():
+            return
+        path, _ = QFileDialog.getOpenFileName(self, "Open result", self._dialog_folder(),
+                                              "Edgewise result (*.json)")
         if path:
             self._remember_folder(path)
             self.open_path(path)
@@ -882,6 +906,7 @@ class MainWindow(QMainWindow):
             event.ignore()
             return
         self.runner.shutdown()
+        self.arranger.wait()
         self.qsettings.setValue("geometry", self.saveGeometry())
         self.qsettings.setValue("windowState", self.saveState())
         self.qsettings.setValue("autoRun", self.act_auto.isChecked())

@@ -4,20 +4,38 @@
 worker :class:`QThread`, throttles the engine's progress callback to about 20 updates a second
 and hands the outcome back to the session on the GUI thread. Stop sets the job's cancel event;
 the engine and the session's chunked cache check it between batches, so a run ends within a
-fraction of a second and no partial result is ever passed on as final.
+fraction of a second and no partial result is ever passed on as final. An error the search
+did not expect reaches the user as one line (what, and where it happened), never a traceback.
+
+:class:`ArrangeRunner` does the same for Arrange: a dense diagram's layout is computed on a
+worker thread and applied on the GUI thread, only if it is still the latest request.
 """
 
 from __future__ import annotations
 
-import sys
+import threading
 import time
 import traceback
+from pathlib import Path
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
 from discovery.exceptions import DiscoveryError, SearchCancelled
 
 _MIN_INTERVAL = 0.05
+
+
+def unexpected_line(err: BaseException) -> str:
+    """One line for an error the search did not expect: what it was and where it happened
+    (the innermost frame), for the user to report; never a traceback."""
+    where = ""
+    frames = traceback.extract_tb(err.__traceback__)
+    if frames:
+        last = frames[-1]
+        where = f" at {Path(last.filename).name}:{last.lineno} in {last.name}"
+    what = " ".join(str(err).split())[:200]
+    return (f"unexpected error in the search ({type(err).__name__}: {what}{where}); "
+            "nothing was changed — please report this line with the run log")
 
 
 class _Worker(QObject):
@@ -47,10 +65,11 @@ class _Worker(QObject):
             self.stopped.emit(self.job)
         except DiscoveryError as err:
             self.failed.emit(self.job, str(err))
-        except Exception as err:  # a bug: one line for the user, details on stderr
-            traceback.print_exc(file=sys.stderr)
-            self.failed.emit(self.job, f"unexpected error in the search ({type(err).__name__}: {err}); "
-                             "please report it with the run log")
+        except MemoryError:
+            self.failed.emit(self.job, "the search ran out of memory; untick variables in "
+                             "the Variables panel or set the Depth box lower, then run again")
+        except Exception as err:  # a bug: one line for the user, where it happened in the log
+            self.failed.emit(self.job, unexpected_line(err))
         else:
             self.finished.emit(self.job, result, seen)
 
@@ -128,3 +147,67 @@ class SearchRunner(QObject):
             worker.job.cancel.set()
             thread.quit()
             thread.wait(timeout_ms)
+
+
+class ArrangeRunner(QObject):
+    """Lay the diagram out on a worker thread, so that the window keeps answering while a
+    dense diagram's force-directed layout is computed (seconds for a hundred variables).
+
+    :meth:`start` takes a :class:`~gui._session.ArrangePlan` from the session; the layout is
+    computed on a Python thread and handed back to the session on the GUI thread, where
+    only the latest request is applied (an Arrange asked for twice applies once; a layout
+    of a diagram that changed meanwhile is dropped).
+    """
+
+    _done = Signal(object, object)
+    _failed = Signal(object, str)
+
+    def __init__(self, session, parent=None):
+        super().__init__(parent)
+        self.session = session
+        self._threads: list[threading.Thread] = []
+        # emitted from the worker thread, received here on the GUI thread (queued)
+        self._done.connect(self._on_done)
+        self._failed.connect(self._on_failed)
+
+    @property
+    def busy(self) -> bool:
+        self._threads = [t for t in self._threads if t.is_alive()]
+        return bool(self._threads)
+
+    def start(self, style: str | None = None) -> bool:
+        plan = self.session.plan_arrange(style)
+        if plan is None:
+            return False
+        thread = threading.Thread(target=self._work, args=(plan,), daemon=True,
+                                  name=f"arrange-{plan.token}")
+        self._threads.append(thread)
+        thread.start()
+        return True
+
+    def _work(self, plan):
+        try:
+            positions = plan.compute()
+        except Exception as err:  # a bug in a layout: one line, the layout stays as it was
+            outcome = (self._failed, (plan, f"the layout failed ({type(err).__name__}: "
+                                            f"{' '.join(str(err).split())[:160]}); the "
+                                            "diagram keeps its places"))
+        else:
+            outcome = (self._done, (plan, positions))
+        try:
+            outcome[0].emit(*outcome[1])
+        except RuntimeError:  # the window closed meanwhile
+            pass
+
+    @Slot(object, object)
+    def _on_done(self, plan, positions):
+        self.session.apply_arrange(plan, positions)
+
+    @Slot(object, str)
+    def _on_failed(self, plan, message):
+        self.session.notifications.error(message, title="Arrange")
+
+    def wait(self, timeout: float = 10.0) -> None:
+        """Wait for the layouts still being computed (window closing, tests)."""
+        for thread in list(self._threads):
+            thread.join(timeout)

@@ -414,7 +414,9 @@ def test_layered_layout_is_offered_without_stages(qtbot, window, tmp_path):
     run_and_wait(qtbot, window)
     assert not window.session.knowledge.stages
     assert window.act_arrange_layered in window.arrange_menu.actions()
-    window.act_arrange_layered.trigger()
+    layouts = window.session.layouts
+    window.act_arrange_layered.trigger()  # laid out on a worker thread
+    qtbot.waitUntil(lambda: window.session.layouts > layouts, timeout=60_000)
     pos = window.session.positions
     for e in window.session.result.edges:
         if e.kind == "directed":

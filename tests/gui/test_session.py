@@ -328,7 +328,7 @@ def test_changed_data_is_a_warning_and_marks_the_result_stale(tmp_path):
 
 
 @pytest.mark.parametrize("content, expected", [
-    ("{not json", "not a session file (invalid JSON"),
+    ("{not json", "not valid JSON"),
     (json.dumps({"format": "edgewise-result", "version": 1}), "not an Edgewise session"),
     (json.dumps({"format": "edgewise-session", "version": 7}), "version 7 is not supported"),
     (json.dumps({"format": "edgewise-session", "version": 1, "settings": {}, "knowledge": {},
@@ -366,3 +366,39 @@ def test_autosave_and_recovery(tmp_path, collider_csv):
     assert t.knowledge.forbidden == (("a", "b"),) and t.dirty
     t.discard_autosave()
     assert not auto.exists() and Session.recovery_offer(auto) is None
+
+
+def test_a_failed_save_keeps_the_previous_session_file(tmp_path, collider_csv, monkeypatch):
+    # saving goes through discovery.files.write_text_atomic: a write that fails half-way (a
+    # full disk) leaves the previous file whole and no temporary file behind
+    import errno
+    from pathlib import Path
+    s = _opened(collider_csv)
+    assert s.save_session(tmp_path / "s.edgewise")
+    before = (tmp_path / "s.edgewise").read_bytes()
+    s.forbid("a", "b")
+    real = Path.write_text
+
+    def full_disk(self, text, *a, **k):
+        real(self, text[:10], *a, **k)  # part of the text reached the disk, then no room
+        raise OSError(errno.ENOSPC, "No space left on device")
+    monkeypatch.setattr(Path, "write_text", full_disk)
+    errors = []
+    s.notifications.posted.connect(errors.append)
+    assert not s.save_session(tmp_path / "s.edgewise")
+    monkeypatch.undo()
+    assert (tmp_path / "s.edgewise").read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["collider.csv", "s.edgewise"]
+    assert len(errors) == 1 and "No space left on device" in errors[0].message
+    assert s.dirty  # the edit is still unsaved
+
+
+@pytest.mark.parametrize("content", ["[" * 5000 + "]" * 5000, '{"format": 1e999999}',
+                                     '{"format": "edgewise-session", "data": [1]}',
+                                     '{"format": "edgewise-session", "autosave_of": 5}'])
+def test_a_damaged_autosave_is_offered_safely_or_not_at_all(tmp_path, content):
+    path = tmp_path / "autosave.edgewise"
+    path.write_text(content, encoding="utf-8")
+    offer = Session.recovery_offer(path)
+    assert offer is None or (offer["data"] is None and offer["session"] is None)
+    assert Session.recovery_offer("/dev/zero") is None
