@@ -359,23 +359,6 @@ def test_bad_command_input_is_one_line_and_no_file(frame, tmp_path, capsys, argv
     assert not target.exists() and list(tmp_path.iterdir()) == [data]
 
 
-def test_sorted_cache_answers_as_the_dict_cache(frame):
-    from discovery.independence import PValueCache
-    from discovery.robustness._cache import SortedPValueCache
-    test = FisherZ(frame)
-    rng = np.random.default_rng(3)
-    plain, fast = PValueCache(), SortedPValueCache()
-    for _ in range(10):  # repeated, overlapping batches: runs get merged on the way
-        rows = np.sort(rng.choice(6, size=(40, 3), replace=True), axis=1)
-        rows = rows[(rows[:, 0] < rows[:, 1]) & (rows[:, 1] < rows[:, 2])]
-        idx = rows[:, [0, 2, 1]]  # x < y, one conditioning variable
-        idx = np.column_stack([np.minimum(idx[:, 0], idx[:, 1]),
-                               np.maximum(idx[:, 0], idx[:, 1]), idx[:, 2]])
-        assert np.array_equal(plain.pvalues_array(test, idx), fast.pvalues_array(test, idx))
-        assert (plain.hits, plain.misses) == (fast.hits, fast.misses)
-    assert len(fast) == len(plain)
-
-
 def test_equivalence_wrapper_refuses_other_tests(frame):
     from discovery.independence import DSeparationOracle
     with pytest.raises(SettingsError, match="no effect size to bound"):
@@ -407,10 +390,11 @@ def test_documents_round_trip_and_damaged_ones_are_refused(frame):
         SupportResult.from_dict({**r.to_dict(), "pairs": [{"a": "x"}]})
 
 
-def test_sorted_cache_wide_rows_are_exact():
+def test_the_sweeps_shared_cache_is_exact_for_wide_rows():
     # 300 variables need 9 bits each: a row with 6 conditioning variables does not pack
-    # into 64 bits, and is keyed by a hash checked against the stored row
-    from discovery.robustness._cache import SortedPValueCache
+    # into 64 bits, and is kept as the row itself (common practice, no source: a cache must
+    # answer exactly what was stored)
+    from discovery.independence import PValueCache
 
     class Echo:  # a stand-in test whose "p-value" names its row
         variables = tuple(f"v{i}" for i in range(300))
@@ -422,7 +406,7 @@ def test_sorted_cache_wide_rows_are_exact():
             return (idx * np.arange(1, idx.shape[1] + 1)).sum(axis=1) / 1e6
 
     rng = np.random.default_rng(0)
-    cache, test = SortedPValueCache(), Echo()
+    cache, test = PValueCache(), Echo()
     rows = np.sort(rng.choice(300, size=(500, 8)), axis=1)
     first = cache.pvalues_array(test, rows)
     again = cache.pvalues_array(test, rows[::-1])

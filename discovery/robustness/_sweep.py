@@ -22,7 +22,6 @@ import numpy as np
 from ..exceptions import SearchCancelled
 from ..independence import PValueCache
 from ..result import ASSUMPTIONS, SearchResult
-from ._cache import SortedPValueCache
 from ._common import check_ladder, csv_text, mark_text
 
 __all__ = ["sweep", "SweepResult", "EdgeSurvival", "DEFAULT_ALPHAS"]
@@ -292,7 +291,7 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
             discover_options["test"], _ = _test_for(
                 data, test, discover_options.get("max_depth"),
                 discover_options.get("test_options"))
-    cache = SortedPValueCache() if cache is None else cache
+    cache = PValueCache() if cache is None else cache
     cancelled = None if cancel is None else (cancel.is_set if hasattr(cancel, "is_set")
                                             else cancel)
     results, seconds = [], []
