@@ -44,3 +44,13 @@ def sixty_frame(n=600, seed=8) -> pd.DataFrame:
              for i, v in enumerate(sorted(dag.nodes))}
     dag = nx.relabel_nodes(dag, names)
     return sample_linear_gaussian(dag, n, rng=seed)
+
+
+RUN_TIMEOUT = 120_000  # ms; generous, the machine is shared (not a speed check)
+
+
+def run_and_wait(qtbot, w):
+    """Start a run in the window and wait until it has ended (done, stopped or failed)."""
+    assert w.run()
+    qtbot.waitUntil(lambda: w.session.status not in ("running", "stopping"),
+                    timeout=RUN_TIMEOUT)

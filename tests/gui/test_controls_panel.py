@@ -23,18 +23,9 @@ from gui._qt.window import MainWindow  # noqa: E402
 
 
 @pytest.fixture
-def window(qtbot, tmp_path, monkeypatch):
-    monkeypatch.setattr(QMessageBox, "warning", staticmethod(lambda *a: None))
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.resize(1300, 850)
-    w.show()
-    w.controls_dock.raise_()
-    yield w
-    w.runner.shutdown()
+def window(window):
+    window.controls_dock.raise_()
+    return window
 
 
 def open_and_run(w, path):

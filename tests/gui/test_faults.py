@@ -21,30 +21,7 @@ from discovery.independence import PValueCache  # noqa: E402
 from discovery.independence._fisher_z import FisherZ  # noqa: E402
 from gui._qt.window import MainWindow  # noqa: E402
 from gui._session import Session  # noqa: E402
-
-RUN_TIMEOUT = 120_000  # ms; generous, the machine is shared (not a speed check)
-
-
-@pytest.fixture
-def dialogs(monkeypatch):
-    shown = []
-    monkeypatch.setattr(QMessageBox, "warning",
-                        staticmethod(lambda parent, title, text, *a: shown.append((title, text))))
-    monkeypatch.setattr(QMessageBox, "question", staticmethod(lambda *a, **k: QMessageBox.No))
-    return shown
-
-
-@pytest.fixture
-def window(qtbot, tmp_path, dialogs):
-    w = MainWindow(settings=QSettings(str(tmp_path / "s.ini"), QSettings.IniFormat),
-                   autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.show()
-    yield w
-    w.runner.shutdown()
-
+from gui_data import RUN_TIMEOUT  # noqa: E402
 
 def wait_idle(qtbot, w):
     qtbot.waitUntil(lambda: w.session.status not in ("running", "stopping"),

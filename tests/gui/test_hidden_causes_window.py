@@ -31,20 +31,6 @@ def hidden_cause_csv(path, n=3000, seed=11):
     return path
 
 
-@pytest.fixture
-def window(qtbot, tmp_path, monkeypatch):
-    monkeypatch.setattr(QMessageBox, "warning", staticmethod(lambda *a: None))
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.resize(1300, 850)
-    w.show()
-    yield w
-    w.runner.shutdown()
-
-
 def test_toggle_runs_fci_and_canvas_draws_the_marks(qtbot, window, tmp_path):
     assert window.open_path(hidden_cause_csv(tmp_path / "h.csv"))
     toggle = window.findChild(QCheckBox, "hiddenCausesToggle")

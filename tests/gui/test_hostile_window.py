@@ -31,14 +31,13 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox  # noqa: E402
 from discovery.files import MAX_DOCUMENT_BYTES  # noqa: E402
 from gui._qt.window import MainWindow  # noqa: E402
 from gui._session import Session  # noqa: E402
-from gui_data import collider_frame  # noqa: E402
+from gui_data import collider_frame, run_and_wait  # noqa: E402
 
 _spec = importlib.util.spec_from_file_location(
     "_hostile_corpus", Path(__file__).resolve().parents[1] / "hostile" / "test_corpus.py")
 corpus = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(corpus)
 
-RUN_TIMEOUT = 120_000  # ms; generous, the machine is shared (not a speed check)
 _CORPUS = {c[0]: c for c in corpus.CASES}
 
 
@@ -268,27 +267,9 @@ def _snapshot(folder: Path) -> dict:
 
 
 @pytest.fixture
-def dialogs(monkeypatch):
-    """Capture message boxes instead of showing them (as in test_window.py)."""
-    shown = []
-    monkeypatch.setattr(QMessageBox, "warning",
-                        staticmethod(lambda parent, title, text, *a: shown.append((title, text))))
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.No))
-    return shown
-
-
-@pytest.fixture
-def window(qtbot, tmp_path, dialogs):
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.resize(1100, 750)
-    w.show()
-    yield w
-    w.runner.shutdown()
+def window(window):
+    window.resize(1100, 750)  # a smaller window than the other files' (the default size)
+    return window
 
 
 def answer_file_dialog(monkeypatch, path):
@@ -302,12 +283,6 @@ _ACTIONS = {DATA: ("act_open", "Open data"), SESSION: ("act_open_session", "Open
 # a command-line option left in a message (the window names its controls instead; an option
 # the window has no control for is said to be the command line's)
 _OPTION = re.compile(r"(?<!option )--[a-z]")
-
-
-def run_and_wait(qtbot, w):
-    assert w.run()
-    qtbot.waitUntil(lambda: w.session.status not in ("running", "stopping"),
-                    timeout=RUN_TIMEOUT)
 
 
 @pytest.mark.parametrize("name, setup, how, target, pattern", CASES,

@@ -17,18 +17,13 @@ from gui._qt.window import MainWindow  # noqa: E402
 
 
 @pytest.fixture
-def window(qtbot, tmp_path, monkeypatch):
+def window(window, monkeypatch):
+    from PySide6.QtWidgets import QMessageBox
     shown = []
     monkeypatch.setattr(QMessageBox, "information",
                         staticmethod(lambda parent, title, text, *a: shown.append(text)))
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    w.shown = shown
-    qtbot.addWidget(w)
-    yield w
-    w.runner.shutdown()
+    window.shown = shown
+    return window
 
 
 def test_report_action_writes_the_report(qtbot, window, collider_csv, tmp_path):

@@ -59,22 +59,9 @@ RUN_TIMEOUT = 120_000
 
 
 @pytest.fixture
-def window(qtbot, tmp_path, monkeypatch):
-    import gui._qt  # noqa: F401
-    from PySide6.QtCore import QSettings
-    from PySide6.QtWidgets import QMessageBox
-
-    from gui._qt.window import MainWindow
-    monkeypatch.setattr(QMessageBox, "warning", staticmethod(lambda *a: None))
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.resize(1300, 900)
-    w.show()
-    yield w
-    w.runner.shutdown()
+def window(window):
+    window.resize(1300, 900)
+    return window
 
 
 def _wait(qtbot, w):

@@ -19,40 +19,7 @@ from discovery.data import read_table  # noqa: E402
 from discovery.exceptions import DataValidationError  # noqa: E402
 from gui._qt.canvas import EdgeItem, OverlayItem  # noqa: E402
 from gui._qt.window import MainWindow, alpha_to_slider, slider_to_alpha  # noqa: E402
-
-RUN_TIMEOUT = 120_000  # ms; generous, the machine is shared (not a speed check)
-
-
-@pytest.fixture
-def dialogs(monkeypatch):
-    """Capture message boxes instead of showing them."""
-    shown = []
-    monkeypatch.setattr(QMessageBox, "warning",
-                        staticmethod(lambda parent, title, text, *a: shown.append((title, text))))
-    # questions (load the knowledge beside the data?) are answered No unless a test says
-    monkeypatch.setattr(QMessageBox, "question",
-                        staticmethod(lambda *a, **k: QMessageBox.No))
-    return shown
-
-
-@pytest.fixture
-def window(qtbot, tmp_path, dialogs):
-    settings = QSettings(str(tmp_path / "settings.ini"), QSettings.IniFormat)
-    w = MainWindow(settings=settings, autosave_path=tmp_path / "autosave.edgewise")
-    w.ask_before_closing = False
-    w.act_auto.setChecked(False)
-    qtbot.addWidget(w)
-    w.resize(1300, 850)
-    w.show()
-    yield w
-    w.runner.shutdown()
-
-
-def run_and_wait(qtbot, w):
-    assert w.run()
-    qtbot.waitUntil(lambda: w.session.status not in ("running", "stopping"),
-                    timeout=RUN_TIMEOUT)
-
+from gui_data import RUN_TIMEOUT, run_and_wait  # noqa: E402
 
 def drawn(w):
     return {(e.source, e.target, e.kind) for e in w.canvas.edges.values()}
