@@ -79,6 +79,16 @@ def folder(tmp):
     (tmp / "a_folder.csv").mkdir()
 
 
+def with_result(tmp):
+    """A good table and the result of a search on it (r.json), as a user would have them."""
+    import contextlib
+    import io
+    csv()(tmp)
+    with contextlib.redirect_stdout(io.StringIO()):
+        assert main(["discover", str(tmp / "d.csv"), "--out", str(tmp / "r.json"),
+                     "--quiet"]) == 0
+
+
 DISCOVER = ["discover", "d.csv"]
 
 # (id, set-up, arguments, pattern of the one error line)
@@ -193,6 +203,47 @@ CASES = [
      ["simulate", "--diagram", "g.csv", "--out", "s.csv"], r"g\.csv"),
     ("simulate-edge-list-wrong-columns", diagram("source,target\na,b\n"),
      ["simulate", "--diagram", "g.csv", "--out", "s.csv"], r"g\.csv.*from.*to"),
+    # -- the analyses and exchange commands ------------------------------------------------------
+    ("sweep-empty-ladder", csv(), ["sweep", "d.csv", "--alphas", ""], r"alphas.*empty"),
+    ("sweep-unsorted-ladder", csv(), ["sweep", "d.csv", "--alphas", "0.1,0.01"],
+     r"strictly increasing"),
+    ("sweep-alpha-outside", csv(), ["sweep", "d.csv", "--alphas", "0.5,1.5"], r"\(0, 1\)"),
+    ("sweep-margin-zero", csv(), ["sweep", "d.csv", "--margins", "0,0.1"], r"margins"),
+    ("sweep-out-is-data", csv(), ["sweep", "d.csv", "--out", "d.csv"], r"--out d\.csv"),
+    ("support-zero-resamples", csv(), ["support", "d.csv", "--resamples", "0"],
+     r"resamples.*at least 1"),
+    ("support-cutoff-outside", csv(), ["support", "d.csv", "--cutoff", "1.5"], r"cutoff"),
+    ("support-csv-is-data", csv(), ["support", "d.csv", "--resamples", "2", "--csv", "d.csv"],
+     r"would overwrite an input"),
+    ("equivalence-without-margin", csv(), DISCOVER + ["--unrelated", "equivalence"],
+     r"margin"),
+    ("equivalence-with-kernel-test", csv(), DISCOVER + ["--unrelated", "equivalence",
+                                                        "--margin", "0.1", "--test", "kci"],
+     r"no effect size"),
+    ("pds-budget-negative", csv(), DISCOVER + ["--hidden-causes", "--pds-budget", "-3"],
+     r"--pds-budget"),
+    ("controls-same-variable", with_result, ["controls", "r.json", "--treatment", "a",
+                                             "--outcome", "a"], r"both 'a'"),
+    ("controls-unknown-treatment", with_result, ["controls", "r.json", "--treatment", "zzz",
+                                                 "--outcome", "b"], r"'zzz'"),
+    ("controls-cyclic-diagram", diagram("from,to\na,b\nb,c\nc,a\n"),
+     ["controls", "g.csv", "--treatment", "a", "--outcome", "b"], r"cycle"),
+    ("controls-set-holds-treatment", with_result, ["controls", "r.json", "--treatment", "a",
+                                                   "--outcome", "b", "--check", "a,c"],
+     r"contains the treatment"),
+    ("controls-set-unknown", with_result, ["controls", "r.json", "--treatment", "a",
+                                           "--outcome", "b", "--check", "q"], r"'q'"),
+    ("report-bad-sweep-file", both(with_result, csv('{"format": "edgewise-sweep", '
+                                                    '"version": 1}', "s.json")),
+     ["report", "r.json", "--sweep", "s.json", "--out", "x.html"], r"--sweep s\.json"),
+    ("report-wrong-suffix", with_result, ["report", "r.json", "--out", "x.txt"],
+     r"--out x\.txt"),
+    ("report-missing-result", None, ["report", "nope.json", "--out", "x.html"],
+     r"nope\.json.*not found"),
+    ("compare-missing-file", with_result, ["compare", "r.json", "nope.csv"],
+     r"nope\.csv.*not found"),
+    ("explain-unknown-variable", with_result, ["explain", "r.json", "a", "zzz"], r"'zzz'"),
+    ("explain-a-table-not-a-result", csv(), ["explain", "d.csv", "a", "b"], r"d\.csv"),
     ("simulate-garbage-graphml", diagram("<graphml><graph><node id=", "g.graphml"),
      ["simulate", "--diagram", "g.graphml", "--out", "s.csv"], r"g\.graphml"),
 ]
