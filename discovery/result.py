@@ -751,13 +751,21 @@ def _is_number(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
-def _is_count(v) -> bool:
-    """A value of ``counts``: a number, a table of numbers (``rules_fired``), or a list of
-    such tables (``levels``)."""
+def _counts_ok(counts: dict) -> bool:
+    """The values of ``counts``: numbers, except ``levels`` (a list of tables of numbers)
+    and ``rules_fired`` (a table of numbers)."""
     def numbers(d):
         return isinstance(d, dict) and all(_is_number(x) for x in d.values())
-    return (_is_number(v) or numbers(v)
-            or (isinstance(v, list) and all(numbers(x) for x in v)))
+    for key, value in counts.items():
+        if key == "levels":
+            ok = isinstance(value, list) and all(numbers(x) for x in value)
+        elif key == "rules_fired":
+            ok = numbers(value)
+        else:
+            ok = _is_number(value)
+        if not ok:
+            return False
+    return True
 
 
 def _checked_extras(doc: dict, known: set, fail) -> dict:
@@ -780,6 +788,8 @@ def _checked_extras(doc: dict, known: set, fail) -> dict:
                 and {t["x"], t["y"], t["z"]} <= known
                 and isinstance(t.get("reason", ""), str))
 
+    if isinstance(doc.get("counts", {}), dict) and not _counts_ok(doc.get("counts", {})):
+        fail("'counts' must hold numbers (and 'levels' a list of tables of numbers)")
     seed = doc.get("seed")
     if seed is not None and (isinstance(seed, bool) or not isinstance(seed, int)):
         fail("'seed' must be a whole number or null")
@@ -787,7 +797,7 @@ def _checked_extras(doc: dict, known: set, fail) -> dict:
                                                     "of known variables"),
             "conflicts": listed("conflicts", lambda v: isinstance(v, str), "texts"),
             "notes": listed("notes", lambda v: isinstance(v, str), "texts"),
-            "counts": table("counts", _is_count),
+            "counts": table("counts"),
             "timings": table("timings", _is_number),
             "data": table("data"), "software": table("software", lambda v: isinstance(v, str)),
             "seed": seed,
