@@ -263,14 +263,20 @@ class _SizeTable:
         return packed.view(np.dtype((np.void, packed.itemsize * self.width))).ravel()
 
     def lookup(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(p-values, mask of known keys); unknown keys get NaN."""
+        """(p-values, mask of known keys); unknown keys get NaN. The largest run is searched
+        first and each later run only for the keys still unknown."""
         values = np.full(len(keys), np.nan)
         known = np.zeros(len(keys), dtype=bool)
-        for run_keys, run_values in self.runs:
-            at = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
-            hit = (run_keys[at] == keys) & ~known
-            values[hit] = run_values[at[hit]]
-            known |= hit
+        todo = np.arange(len(keys))
+        for run_keys, run_values in sorted(self.runs, key=lambda r: -len(r[0])):
+            if not len(todo):
+                break
+            want = keys[todo]
+            at = np.minimum(np.searchsorted(run_keys, want), len(run_keys) - 1)
+            hit = run_keys[at] == want
+            values[todo[hit]] = run_values[at[hit]]
+            known[todo[hit]] = True
+            todo = todo[~hit]
         return values, known
 
     def store(self, keys: np.ndarray, values: np.ndarray) -> None:
