@@ -908,7 +908,13 @@ def _unsearchable(series: pd.Series) -> str | None:
                 parsed = pd.to_datetime(sample, errors="coerce", format="mixed")
             if parsed.notna().mean() >= 0.9:
                 return "date/time"
-    if len(values) < _ID_MIN_ROWS or values.nunique() < _ID_DISTINCT_SHARE * len(values):
+    if len(values) < _ID_MIN_ROWS:
+        return None
+    if not is_text and pd.api.types.is_float_dtype(values.dtype):
+        numbers = values.to_numpy(dtype=float)
+        if not np.all(numbers == np.round(numbers)):
+            return None  # measurements, not a row number: skip the costly count of values
+    if values.nunique() < _ID_DISTINCT_SHARE * len(values):
         return None
     if is_text:
         words = values.iloc[:200].astype(str).str.split().str.len().mean()
