@@ -283,11 +283,19 @@ class _SizeTable:
         self.runs.append(_sorted_run(keys, np.asarray(values, dtype=float)))
         while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
             (k1, v1), (k2, v2) = self.runs[-2], self.runs.pop()
-            self.runs[-1] = _sorted_run(np.concatenate([k1, k2]), np.concatenate([v1, v2]))
+            self.runs[-1] = _merged_runs(k1, v1, k2, v2)
         self.size = sum(len(k) for k, _ in self.runs)
 
     def __len__(self):
         return self.size
+
+
+def _merged_runs(k1, v1, k2, v2) -> tuple[np.ndarray, np.ndarray]:
+    """Two sorted runs as one, in linear time (keys of the second already in the first keep
+    the first's value)."""
+    at = np.searchsorted(k1, k2)
+    fresh = (at >= len(k1)) | (k1[np.minimum(at, len(k1) - 1)] != k2)
+    return (np.insert(k1, at[fresh], k2[fresh]), np.insert(v1, at[fresh], v2[fresh]))
 
 
 def _sorted_run(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
