@@ -10,12 +10,13 @@ the expected number of falsely selected pairs.
 
 from __future__ import annotations
 
-from PySide6.QtCore import QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QColor, QFont, QPainter, QPen
+from PySide6.QtCore import QRectF, Qt, Signal
+from PySide6.QtGui import QColor, QPainter, QPen
 from PySide6.QtWidgets import (QComboBox, QDoubleSpinBox, QHBoxLayout, QLabel, QPushButton,
                                QScrollArea, QSpinBox, QVBoxLayout, QWidget)
 
 from . import style
+from .pair_rows import PairRowsChart
 from .style import signals_blocked
 
 __all__ = ["SupportPanel", "SupportChart"]
@@ -28,61 +29,33 @@ _COLOURS = (("a_to_b", style.SLATE), ("b_to_a", QColor("#7A8794")),
             ("undirected", QColor("#B9C0C7")), ("contested", style.CONTESTED))
 
 
-class SupportChart(QWidget):
+class SupportChart(PairRowsChart):
     """Stacked support bars per pair; clicks select pairs."""
 
-    pair_clicked = Signal(str, str)
+    TOP = _TOP
 
     def __init__(self, parent=None):
-        super().__init__(parent)
-        self.setObjectName("supportChart")
-        self.record = None
-        self.selected = None
-        self.setMinimumHeight(80)
+        super().__init__("supportChart", parent)
+
+    def rows(self):
+        return self.record.pairs if self.record is not None else ()
+
+    def empty_text(self):
+        return ("No resampling yet: Resample in the toolbar searches resampled copies of the "
+                "data" if self.record is None else "No edge in any resample")
 
     def set_record(self, record, selected=None):
         self.record, self.selected = record, selected
-        rows = len(record.pairs) if record is not None else 0
-        self.setMinimumHeight(_TOP + _ROW * rows + 10)
-        self.updateGeometry()
-        self.update()
-
-    def sizeHint(self):
-        rows = len(self.record.pairs) if self.record is not None else 0
-        return QSize(520, _TOP + _ROW * rows + 10)
+        self.fit_rows()
 
     def _x(self, share: float) -> float:
         return _LEFT + share * max(1.0, self.width() - _LEFT - _RIGHT)
 
-    def row_at(self, y: float) -> int | None:
-        if self.record is None:
-            return None
-        row = int((y - _TOP) // _ROW)
-        return row if 0 <= row < len(self.record.pairs) else None
-
-    def mousePressEvent(self, event):
-        row = self.row_at(event.position().y())
-        if row is not None and event.button() == Qt.LeftButton:
-            pair = self.record.pairs[row]
-            self.pair_clicked.emit(pair.a, pair.b)
-            event.accept()
-            return
-        super().mousePressEvent(event)
-
     def paintEvent(self, event):
         p = QPainter(self)
-        p.setRenderHint(QPainter.Antialiasing)
-        p.fillRect(self.rect(), style.CANVAS)
-        record = self.record
-        if record is None or not record.pairs:
-            p.setPen(style.MUTED)
-            p.drawText(self.rect(), Qt.AlignCenter,
-                       "No resampling yet: Resample in the toolbar searches resampled copies "
-                       "of the data" if record is None else "No edge in any resample")
+        if not self.begin_paint(p):
             return
-        font = QFont(self.font())
-        font.setPointSizeF(8.5)
-        p.setFont(font)
+        record = self.record
         p.setPen(style.SLATE)
         for share in (0.0, 0.25, 0.5, 0.75, 1.0):
             p.drawText(QRectF(self._x(share) - 20, 3, 40, 16), Qt.AlignCenter, f"{share:g}")

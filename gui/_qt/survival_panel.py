@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import math
 
-from PySide6.QtCore import QPointF, QRectF, QSize, Qt, Signal
-from PySide6.QtGui import QFont, QPainter, QPen
+from PySide6.QtCore import QPointF, QRectF, Qt, Signal
+from PySide6.QtGui import QPainter, QPen
 from PySide6.QtWidgets import (QHBoxLayout, QLabel, QPushButton, QScrollArea, QVBoxLayout,
                                QWidget)
 
 from . import style
+from .pair_rows import PairRowsChart
 
 __all__ = ["SurvivalPanel", "SurvivalChart"]
 
@@ -34,30 +35,27 @@ def _glyph(mark: str, a: str, b: str) -> str:
     return middle.strip()
 
 
-class SurvivalChart(QWidget):
+class SurvivalChart(PairRowsChart):
     """The painted chart (rows of pairs against the ladder); clicks select pairs."""
 
-    pair_clicked = Signal(str, str)
+    TOP = _TOP
+    BOTTOM = 28  # room for the ladder's name under the rows
 
     def __init__(self, parent=None):
-        super().__init__(parent)
-        self.setObjectName("survivalChart")
-        self.record = None
+        super().__init__("survivalChart", parent)
         self.current = None
-        self.selected = None
         self.setMouseTracking(True)
-        self.setMinimumHeight(80)
+
+    def rows(self):
+        return self.record.edges if self.record is not None else ()
+
+    def empty_text(self):
+        return ("No sweep yet: Sweep in the toolbar runs the search over a ladder of α"
+                if self.record is None else "The sweep found no edge at any rung")
 
     def set_record(self, record, current=None, selected=None):
         self.record, self.current, self.selected = record, current, selected
-        rows = len(record.edges) if record is not None else 0
-        self.setMinimumHeight(_TOP + _ROW * rows + 28)
-        self.updateGeometry()
-        self.update()
-
-    def sizeHint(self):
-        rows = len(self.record.edges) if self.record is not None else 0
-        return QSize(520, _TOP + _ROW * rows + 28)
+        self.fit_rows()
 
     def _x(self, value) -> float:
         ladder = self.record.ladder
@@ -67,35 +65,11 @@ class SurvivalChart(QWidget):
             return _LEFT + width / 2
         return _LEFT + (math.log(value) - lo) / (hi - lo) * width
 
-    def row_at(self, y: float) -> int | None:
-        if self.record is None:
-            return None
-        row = int((y - _TOP) // _ROW)
-        return row if 0 <= row < len(self.record.edges) else None
-
-    def mousePressEvent(self, event):
-        row = self.row_at(event.position().y())
-        if row is not None and event.button() == Qt.LeftButton:
-            e = self.record.edges[row]
-            self.pair_clicked.emit(e.a, e.b)
-            event.accept()
-            return
-        super().mousePressEvent(event)
-
     def paintEvent(self, event):
         p = QPainter(self)
-        p.setRenderHint(QPainter.Antialiasing)
-        p.fillRect(self.rect(), style.CANVAS)
-        record = self.record
-        if record is None or not record.edges:
-            p.setPen(style.MUTED)
-            p.drawText(self.rect(), Qt.AlignCenter,
-                       "No sweep yet: Sweep in the toolbar runs the search over a ladder of α"
-                       if record is None else "The sweep found no edge at any rung")
+        if not self.begin_paint(p):
             return
-        font = QFont(self.font())
-        font.setPointSizeF(8.5)
-        p.setFont(font)
+        record = self.record
         ladder = record.ladder
         # ladder ticks
         p.setPen(QPen(style.MUTED, 1))
