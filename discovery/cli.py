@@ -115,7 +115,7 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--jobs", type=int, default=1, metavar="N",
                    help="worker processes for tests that are not vectorised (default: 1)")
     d.add_argument("--cluster", metavar="ADDRESS",
-                   help="run those tests on a Dask cluster, e.g. tcp://10.0.0.5:8786 "
+                   help="run those tests on a Dask cluster, e.g. tcp://SCHEDULER-HOST:8786 "
                         "(needs edgewise[cluster]; see docs/parallel.md)")
     d.add_argument("--out", metavar="FILE.json", help="write the result JSON here")
     d.add_argument("--dot", metavar="FILE.dot", help="write the diagram as Graphviz DOT")

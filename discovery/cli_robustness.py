@@ -46,8 +46,10 @@ def register(sub) -> None:
                     "at which it is present, with its mark at each.",
         epilog="examples:\n  edgewise sweep example_sets/greenhouse/data.csv --out out/s.json "
                "\\\n      --csv out/s.csv --figure out/s.png\n"
-               "  edgewise sweep data.csv --alphas 0.001,0.01,0.05,0.1 --out s.json\n"
-               "  edgewise sweep data.csv --margins 0.02,0.05,0.1 --alpha 0.05 --out s.json")
+               "  edgewise sweep example_sets/greenhouse/data.csv --alphas 0.001,0.01,0.05,0.1 \\\n"
+               "      --out out/s.json\n"
+               "  edgewise sweep example_sets/greenhouse/data.csv --margins 0.02,0.05,0.1 \\\n"
+               "      --alpha 0.05 --out out/s.json")
     _search_options(s)
     s.add_argument("--alphas", metavar="A1,A2,...",
                    help="increasing alpha values in (0, 1) (default: 12 log-spaced rungs "
@@ -67,7 +69,8 @@ def register(sub) -> None:
                     "it is adjacent and in each orientation, with a consensus diagram.",
         epilog="examples:\n  edgewise support example_sets/greenhouse/data.csv --resamples 100 "
                "\\\n      --seed 1 --jobs 2 --out out/support.json --csv out/support.csv\n"
-               "  edgewise support data.csv --method subsample --cutoff 0.8 --figure s.png")
+               "  edgewise support example_sets/greenhouse/data.csv --method subsample \\\n"
+               "      --cutoff 0.8 --figure out/s.png")
     _search_options(r)
     r.add_argument("--resamples", type=int, default=100, metavar="B",
                    help="number of resamples (default: 100)")

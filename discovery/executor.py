@@ -633,7 +633,7 @@ class DaskExecutor(_Spreading):
     Parameters
     ----------
     address : str
-        The scheduler's address, e.g. ``"tcp://10.0.0.5:8786"``.
+        The scheduler's address, e.g. ``"tcp://SCHEDULER-HOST:8786"``.
     timeout : float
         Seconds to wait for the scheduler (default :data:`CLUSTER_TIMEOUT`).
     min_seconds : float, optional
