@@ -163,7 +163,6 @@ class SearchJob:
             :attr:`cancel` was set.
         """
         from discovery import discover
-        from discovery.data import prepare_frame
 
         def report(info):
             if progress is not None:
@@ -173,11 +172,7 @@ class SearchJob:
 
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            ds = self.dataset
-            prepared = prepare_frame(ds.frame, columns=list(self.included),
-                                     missing=self.settings.missing, source=ds.source)
-            prepared = dataclasses.replace(prepared, sha256=ds.sha256,
-                                           rows_read=ds.rows_read)
+            prepared = _prepare_included(self.dataset, self.included, self.settings.missing)
             knowledge = restrict_knowledge(self.knowledge, prepared.variables)
             report({"phase": "prepare", "level": 0, "done": 0, "planned": 0})
             result = discover(
@@ -194,12 +189,21 @@ class SearchJob:
                 directed=[(e.source, e.target) for e in result.edges
                           if e.kind == "directed"],
                 sizes=self.extras.get("sizes"), aspect=self.extras.get("aspect"))
-        seen = []
-        for w in caught:
-            text = str(w.message)
-            if text not in seen:
-                seen.append(text)
-        return result, seen
+        return result, _messages(caught)
+
+
+def _prepare_included(dataset, included, missing):
+    """The open table cut to the included columns, as the search sees it; it keeps the
+    fingerprint and row count of the file it was read from."""
+    from discovery.data import prepare_frame
+    prepared = prepare_frame(dataset.frame, columns=list(included), missing=missing,
+                             source=dataset.source)
+    return dataclasses.replace(prepared, sha256=dataset.sha256, rows_read=dataset.rows_read)
+
+
+def _messages(caught) -> list[str]:
+    """The texts of caught warnings, each once, in order."""
+    return list(dict.fromkeys(str(w.message) for w in caught))
 
 
 #: The analyses a session runs besides the search (see :class:`AnalysisJob`).
@@ -237,7 +241,6 @@ class AnalysisJob:
         SearchCancelled
             :attr:`cancel` was set.
         """
-        from discovery.data import prepare_frame
         from discovery.robustness import support, sweep
 
         def report(info):
@@ -250,10 +253,7 @@ class AnalysisJob:
         s = self.settings
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            ds = self.dataset
-            prepared = prepare_frame(ds.frame, columns=list(self.included),
-                                     missing=s.missing, source=ds.source)
-            prepared = dataclasses.replace(prepared, sha256=ds.sha256, rows_read=ds.rows_read)
+            prepared = _prepare_included(self.dataset, self.included, s.missing)
             options = dict(test=s.test, max_depth=s.max_depth, collider_rule=s.collider_rule,
                            knowledge=restrict_knowledge(self.knowledge, prepared.variables),
                            progress=report, cancel=self.cancel)
@@ -272,11 +272,7 @@ class AnalysisJob:
                                  method=extra.get("method", "bootstrap"),
                                  seed=extra.get("seed"), cutoff=extra.get("cutoff", 0.5),
                                  alpha=s.alpha, **options)
-        seen = []
-        for w in caught:
-            if str(w.message) not in seen:
-                seen.append(str(w.message))
-        return record, seen
+        return record, _messages(caught)
 
 
 @dataclasses.dataclass(frozen=True)
