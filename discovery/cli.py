@@ -113,7 +113,8 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--list-test-options", action="store_true",
                    help="list every test's options and exit")
     d.add_argument("--jobs", type=int, default=1, metavar="N",
-                   help="worker processes for tests that are not vectorised (default: 1)")
+                   help="processes that compute tests which are not vectorised: this one and "
+                        "N-1 local workers; -1: one per CPU core (default: 1)")
     d.add_argument("--cluster", metavar="ADDRESS",
                    help="run those tests on a Dask cluster, e.g. tcp://SCHEDULER-HOST:8786 "
                         "(needs edgewise[cluster]; see docs/parallel.md)")

@@ -83,7 +83,8 @@ def register(sub) -> None:
                    help="support needed to enter the consensus diagram, in (0, 1] "
                         "(default: 0.5)")
     r.add_argument("--jobs", type=int, default=1, metavar="N",
-                   help="local worker processes (default: 1, in-process)")
+                   help="processes that compute: this one and N-1 local workers "
+                        "(default: 1, in-process)")
     r.add_argument("--cluster", metavar="tcp://HOST:PORT",
                    help="address of a Dask scheduler to run the resamples on")
     r.add_argument("--out", metavar="FILE.json", help="write the support JSON here")

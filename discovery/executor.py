@@ -28,7 +28,7 @@ Why parallel work used to be slower, and what this module does about it
     * **spreading must pay**: each spread batch measures how much CPU the workers got
       together (their CPU time over the batch's wall time); below :data:`SPREAD_CORES`
       (other work keeps the cores busy), the extra work of spreading cannot pay, and
-      batches stay in-process, every eighth one being spread anyway to notice free cores;
+      batches stay in-process, every fourth one being spread anyway to notice free cores;
     * **BLAS is single-threaded in workers**, which already share the cores.
 
 Faults
@@ -213,8 +213,10 @@ class InProcessExecutor(Executor):
 # ------------------------------------------------------------------------------ spreading
 
 def _run_piece(fn, shared, part, mode):
-    """What a worker does with one piece: (output, (wall, CPU seconds), warnings raised)."""
-    started, cpu = time.perf_counter(), time.process_time()
+    """What a worker does with one piece: (output, (wall, CPU seconds), warnings raised).
+
+    CPU is this thread's (the caller may compute a piece while other threads run)."""
+    started, cpu = time.perf_counter(), time.thread_time()
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         with blas_threads(1):
@@ -224,13 +226,13 @@ def _run_piece(fn, shared, part, mode):
                 out = [fn(item) for item in part]
             else:
                 out = [fn(shared, item) for item in part]
-    spent = (time.perf_counter() - started, time.process_time() - cpu)
+    spent = (time.perf_counter() - started, time.thread_time() - cpu)
     return out, spent, [(w.category, str(w.message)) for w in caught]
 
 
-def _rewarn(caught):
+def _rewarn(caught, stacklevel=4):
     for category, message in caught:
-        warnings.warn(message, category, stacklevel=4)
+        warnings.warn(message, category, stacklevel=stacklevel)
 
 
 def _fault(err: BaseException, remote_traceback: str, where: str) -> DiscoveryError:
@@ -249,6 +251,8 @@ class _Spreading(Executor):
     """Shared logic of the back-ends with workers: cost estimates, chunking, fallback."""
 
     min_seconds: float = MIN_SECONDS
+    chunk_seconds: float = CHUNK_SECONDS
+    chunks_per_job: int = 3
     _local = True  # map() may run one item, or one worker's work, in the caller instead
 
     def _init_costs(self, min_seconds):
@@ -304,12 +308,12 @@ class _Spreading(Executor):
             out = np.asarray(fn(shared, rest))
             rate.learn("here", time.perf_counter() - started, len(rest))
             return np.concatenate(head + [out])
-        # Between one and three chunks per worker, of about CHUNK_SECONDS each: enough to
-        # even out the workers' loads, few enough that rows sharing a conditioning set (and
-        # the test's cached pieces for it) mostly stay together.
+        # Chunks of about chunk_seconds each, between one and chunks_per_job per worker:
+        # enough to even out the workers' loads, few enough that rows sharing a conditioning
+        # set (and the test's cached pieces for it) mostly stay together.
         cost = rate.work if rate.work is not None else rate.here
-        count = min(3 * self.jobs, max(self.jobs, int(np.ceil(cost * len(rest)
-                                                              / CHUNK_SECONDS))))
+        count = min(self.chunks_per_job * self.jobs,
+                    max(self.jobs, int(np.ceil(cost * len(rest) / self.chunk_seconds))))
         cuts = _cuts(len(rest), count, None if groups is None
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
@@ -332,13 +336,13 @@ class _Spreading(Executor):
         Spreading costs extra work (each worker builds its own caches and starts cold):
         1.3 to 1.6 times the CPU for the kernel test in our runs. It pays only when
         the workers together get clearly more than one core; while other work keeps the
-        cores busy they do not, and batches stay in-process. Every eighth batch held back is
+        cores busy they do not, and batches stay in-process. Every fourth batch held back is
         spread anyway, to notice when cores come free.
         """
         if self._cores is None or self._cores >= SPREAD_CORES:
             return True
         self._held_back += 1
-        return self._held_back % 8 == 0
+        return self._held_back % 4 == 0
 
     def _dispatch(self, fn, shared, parts, mode, cancelled, tick):
         """Run every part; return (outputs in order, (wall, CPU) seconds of the workers)."""
@@ -478,19 +482,30 @@ def _exit_text(code) -> str:
 
 
 class ProcessExecutor(_Spreading):
-    """Spread work over ``jobs`` local worker processes (default: the number of CPU cores).
+    """Spread work over ``jobs`` processes: the calling one and ``jobs - 1`` local workers
+    (default: as many as CPU cores).
 
-    Workers start on first use and stay until :meth:`close`; each keeps the shared objects it
-    received (see the module docstring).
+    The caller works too: while the workers compute, it takes pieces from the other end of
+    the queue, with its own warm caches (kernel features, residual makers), so that no core
+    waits and a worker's cold start is paid once fewer. Workers start on first use and stay
+    until :meth:`close`; each keeps the shared objects it received (see the module
+    docstring).
 
     Parameters
     ----------
     jobs : int, optional
-        Worker processes (default: the number of CPU cores).
+        Processes that compute, the caller included (default: the number of CPU cores).
     min_seconds : float, optional
         Batches of rows estimated to take less than this stay in-process (default
         :data:`MIN_SECONDS`; 0 always spreads).
     """
+
+    # The caller takes pieces from the back of the queue and the workers from the front, so
+    # neighbouring pieces (rows sharing a conditioning set) stay on one side whatever their
+    # size: small pieces cost a pipe round trip each, and keep every process busy to the end
+    # of a batch.
+    chunk_seconds = 0.03
+    chunks_per_job = 16
 
     def __init__(self, jobs: int | None = None, *, min_seconds: float | None = None):
         self.jobs = int(jobs) if jobs else (os.cpu_count() or 1)
@@ -506,12 +521,12 @@ class ProcessExecutor(_Spreading):
             if not w.alive():
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
-        if len(self._workers) < self.jobs:
+        if len(self._workers) < self.jobs - 1:
             method = _start_method()
             context = multiprocessing.get_context(method)
             if method == "forkserver":  # workers fork from a server that imported these once
                 context.set_forkserver_preload(["discovery.independence", "discovery.search"])
-            while len(self._workers) < self.jobs:
+            while len(self._workers) < self.jobs - 1:  # the caller is the last job
                 self._workers.append(_Worker(context))
         return self._workers
 
@@ -556,8 +571,15 @@ class ProcessExecutor(_Spreading):
                         busy[w.conn] = w
                 if cancelled is not None and cancelled():
                     raise _stopped()
+                worked = bool(todo)
+                if worked:  # the caller computes the last piece waiting, then looks again
+                    i = todo.pop()
+                    outs[i], spent = self._run_here(fn, shared, parts[i], mode)
+                    seconds = seconds + spent
+                    if tick is not None:
+                        tick(i)
                 ready = _wait_ready(list(busy) + [w.process.sentinel for w in busy.values()],
-                                    timeout=_POLL)
+                                    timeout=0 if worked else _POLL)
                 for w in list(busy.values()):
                     if w.conn in ready or (w.process.sentinel in ready and w.conn.poll()):
                         try:
@@ -593,6 +615,18 @@ class ProcessExecutor(_Spreading):
             self._workers = [w for w in self._workers if w.alive()]
             raise
         return outs, seconds
+
+    @staticmethod
+    def _run_here(fn, shared, part, mode):
+        """One piece in the calling process, failing as a worker's piece would."""
+        try:
+            out, spent, caught = _run_piece(fn, shared, part, mode)
+        except DiscoveryError:
+            raise
+        except Exception as err:  # noqa: BLE001 - the same one error as from a worker
+            raise _fault(err, traceback.format_exc(), "work in the calling process") from err
+        _rewarn(caught, stacklevel=5)
+        return out, np.asarray(spent)
 
     def close(self):
         for w in self._workers:
@@ -782,8 +816,9 @@ def make_executor(jobs: int | None = None, cluster: str | None = None, *,
     Parameters
     ----------
     jobs : int, optional
-        1 (or 0/None): in-process; more: that many local worker processes; negative: one per
-        CPU core. Ignored when ``cluster`` is given.
+        1 (or 0/None): in-process; more: that many processes compute, the caller and
+        ``jobs - 1`` local workers; negative: one per CPU core. Ignored when ``cluster`` is
+        given.
     cluster : str, optional
         A Dask scheduler's address (``"tcp://host:port"``): run on that cluster.
     timeout : float, optional

@@ -5,6 +5,7 @@ in-process search (every back-end must give the identical result, p-values inclu
 Dask cluster is a real ``distributed.LocalCluster`` with two worker processes on 127.0.0.1.
 """
 
+import multiprocessing
 import os
 import signal
 import threading
@@ -44,7 +45,8 @@ def refuse_data(x):
 
 
 def die_on_two(x):
-    if x == 2:
+    # only a worker process dies (the caller computes pieces too, and must survive)
+    if x >= 2 and multiprocessing.parent_process() is not None:
         os.kill(os.getpid(), signal.SIGKILL)
     time.sleep(0.05)
     return x
@@ -53,6 +55,11 @@ def die_on_two(x):
 def slow(x):
     time.sleep(0.3)
     return x
+
+
+def slow_pid(x):
+    time.sleep(0.1)
+    return os.getpid(), x
 
 
 def slow_and_logged(args):
@@ -100,9 +107,30 @@ def test_shared_object_reaches_each_worker_once():
     copies = {}
     for pid, ident, _ in first + second:
         copies.setdefault(pid, set()).add(ident)
-    assert os.getpid() not in copies  # the work ran in workers
+    # the caller computes pieces too, on the object itself; the rest ran in one worker
+    assert copies.pop(os.getpid(), {id(shared)}) == {id(shared)}
+    assert len(copies) == 1
     # one copy per worker, kept between calls: the data were not sent again
-    assert all(len(idents) == 1 for idents in copies.values())
+    assert all(len(idents) == 1 and id(shared) not in idents for idents in copies.values())
+
+
+def test_caller_and_one_worker_share_two_jobs():
+    # jobs counts the processes that compute: the caller takes pieces from the back of the
+    # queue while one worker process takes them from the front (order kept, as map's).
+    with ProcessExecutor(2) as ex:
+        out = ex.map(slow_pid, range(8))
+        assert len(ex._workers) == 1
+    assert [x for _, x in out] == list(range(8))
+    pids = [pid for pid, _ in out]
+    assert os.getpid() in pids and len(set(pids)) == 2
+    assert pids[0] != os.getpid() and pids[-1] == os.getpid()
+
+
+def test_fault_in_the_callers_piece_is_the_same_one_error():
+    with ProcessExecutor(2) as ex:
+        with pytest.raises(WorkerError, match=r"ZeroDivisionError: three is not allowed"):
+            ex.map(fail_on_three, [3, 3, 3, 3])
+        assert ex.map(double, [1, 2]) == [2, 4]
 
 
 def test_progress_reports_every_item():
