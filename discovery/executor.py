@@ -84,6 +84,9 @@ _KEEP_SHARED = 2
 #: Seconds to wait for a cluster's scheduler before giving up.
 CLUSTER_TIMEOUT = 10.0
 _POLL = 0.1
+#: Pieces sent ahead to each local worker (small row pieces only; see _fits_pipe).
+_IN_FLIGHT = 2
+_PIPE_BYTES = 65536  # the smallest pipe buffer of the systems we run on (Linux, macOS)
 
 
 def _cancel_check(cancel):
@@ -253,6 +256,7 @@ class _Spreading(Executor):
     min_seconds: float = MIN_SECONDS
     chunk_seconds: float = CHUNK_SECONDS
     chunks_per_job: int = 3
+    chunks_min_per_job: int = 1
     _local = True  # map() may run one item, or one worker's work, in the caller instead
 
     def _init_costs(self, min_seconds):
@@ -312,8 +316,9 @@ class _Spreading(Executor):
         # enough to even out the workers' loads, few enough that rows sharing a conditioning
         # set (and the test's cached pieces for it) mostly stay together.
         cost = rate.work if rate.work is not None else rate.here
-        count = min(self.chunks_per_job * self.jobs,
-                    max(self.jobs, int(np.ceil(cost * len(rest) / self.chunk_seconds))))
+        count = min(self.chunks_per_job * self.jobs, len(rest),
+                    max(self.chunks_min_per_job * self.jobs,
+                        int(np.ceil(cost * len(rest) / self.chunk_seconds))))
         cuts = _cuts(len(rest), count, None if groups is None
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
@@ -443,7 +448,7 @@ class _Worker:
         self.process.start()
         child.close()
         self.tokens: set = set()
-        self.task = None
+        self.tasks: deque = deque()  # pieces sent and not yet answered, in order
 
     def alive(self) -> bool:
         return self.process.is_alive()
@@ -481,6 +486,20 @@ def _exit_text(code) -> str:
     return f"it exited with status {code}"
 
 
+def _fits_pipe(part, mode) -> bool:
+    """Whether a piece, and its answer, are small enough to send ahead: both then fit the
+    pipe's buffer, so caller and worker can never block each other writing."""
+    return mode == "rows" and getattr(part, "nbytes", _PIPE_BYTES) < _PIPE_BYTES // 4
+
+
+def _lost(w: _Worker, parts) -> WorkerError:
+    w.process.join(1)
+    return WorkerError(
+        f"a worker process was lost while working on "
+        f"{sum(len(parts[i]) for i in w.tasks)} item(s): {_exit_text(w.process.exitcode)}; "
+        "nothing was kept — run again, with fewer jobs if memory is short")
+
+
 class ProcessExecutor(_Spreading):
     """Spread work over ``jobs`` processes: the calling one and ``jobs - 1`` local workers
     (default: as many as CPU cores).
@@ -506,6 +525,7 @@ class ProcessExecutor(_Spreading):
     # of a batch.
     chunk_seconds = 0.03
     chunks_per_job = 16
+    chunks_min_per_job = 2  # a worker holds two pieces at once; the caller needs its own
 
     def __init__(self, jobs: int | None = None, *, min_seconds: float | None = None):
         self.jobs = int(jobs) if jobs else (os.cpu_count() or 1)
@@ -560,15 +580,21 @@ class ProcessExecutor(_Spreading):
         try:
             while todo or busy:
                 for w in workers:
-                    if w.task is None and todo:
+                    # two pieces in flight: a worker never waits for the caller to read its
+                    # last answer before it can start the next piece
+                    while todo and (not w.tasks or (len(w.tasks) < _IN_FLIGHT
+                                                     and _fits_pipe(parts[todo[0]], mode))):
                         i = todo.popleft()
-                        if token is not None and token not in w.tokens:
-                            w.conn.send(("share", token))
-                            w.conn.send_bytes(payload)
-                            w.tokens.add(token)
-                        w.conn.send(("run", i, token, fn, parts[i], mode))
-                        w.task = i
+                        w.tasks.append(i)
                         busy[w.conn] = w
+                        try:
+                            if token is not None and token not in w.tokens:
+                                w.conn.send(("share", token))
+                                w.conn.send_bytes(payload)
+                                w.tokens.add(token)
+                            w.conn.send(("run", i, token, fn, parts[i], mode))
+                        except OSError:  # the worker is gone (killed while we sent)
+                            raise _lost(w, parts) from None
                 if cancelled is not None and cancelled():
                     raise _stopped()
                 worked = bool(todo)
@@ -589,29 +615,24 @@ class ProcessExecutor(_Spreading):
                         if reply is not None and reply[0] == "ok":
                             _, i, out, spent, caught = reply
                             outs[i], seconds = out, seconds + spent
-                            w.task = None
-                            del busy[w.conn]
+                            w.tasks.remove(i)
+                            if not w.tasks:
+                                del busy[w.conn]
                             _rewarn(caught)
                             if tick is not None:
                                 tick(i)
                             continue
                         if reply is not None:
                             _, i, err, text = reply
-                            w.task = None
-                            del busy[w.conn]
                             raise _fault(err, text, "work in a worker process")
                     if w.process.sentinel in ready or not w.alive():
-                        w.process.join(1)
-                        raise WorkerError(
-                            f"a worker process was lost while working on "
-                            f"{len(parts[w.task])} item(s): {_exit_text(w.process.exitcode)}; "
-                            "nothing was kept — run again, with fewer jobs if memory is short")
+                        raise _lost(w, parts)
         except BaseException:
             # stopped, failed or interrupted: end the workers still busy (a fresh one starts
             # on next use), so that nothing half-done is ever read back
             for w in busy.values():
                 w.end()
-                w.task = None
+                w.tasks.clear()
             self._workers = [w for w in self._workers if w.alive()]
             raise
         return outs, seconds

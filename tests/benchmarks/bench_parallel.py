@@ -128,7 +128,7 @@ def _search_seconds(frame, test, jobs):
 
 def _forced_spreading(frame, test) -> dict:
     """One search with every batch spread (no in-process fallback): what spreading costs in
-    CPU, and how many cores the two workers got together while they computed."""
+    CPU, and how many cores the caller and its worker got together while they computed."""
     import discovery.executor as ex
     from discovery import discover
     keep = ex.SPREAD_CORES
@@ -171,25 +171,31 @@ def parallel_figures(quick: bool = False, repeat: int | None = None, only=None) 
     repeat = repeat or (1 if quick else 3)
     n_kernel, n_mixed, n_g2 = (2000, 1000, 5000) if quick else (10000, 2000, 10000)
     out = {}
-    cases = [("kci", f"kci, nonlinear model, 10 variables, n = {n_kernel:,}",
+    n_mixed_large = 2000 if quick else 5000  # the mixed test's speed table (10 columns, 5,000)
+    cases = [("kci", "kci", f"kci, nonlinear model, 10 variables, n = {n_kernel:,}",
               lambda: sample(n_kernel, seed=1)),
-             ("mixed", f"mixed, invented 10 columns of 3 kinds, n = {n_mixed:,}",
+             ("mixed", "mixed", f"mixed, invented 10 columns of 3 kinds, n = {n_mixed:,}",
               lambda: mixed_table(n_mixed, seed=2))]
+    if n_mixed_large != n_mixed:
+        cases.append(("mixed-large", "mixed",
+                      f"mixed, invented 10 columns of 3 kinds, n = {n_mixed_large:,}",
+                      lambda: mixed_table(n_mixed_large, seed=2)))
     alarm = alarm_sample(n_g2, seed=3) if not only or "g-squared" in only else None
     if alarm is not None:
-        cases.append(("g-squared", f"G², ALARM sampled from its tables, n = {n_g2:,}",
-                      lambda: alarm))
+        cases.append(("g-squared", "g-squared", f"G², ALARM sampled from its tables, "
+                      f"n = {n_g2:,}", lambda: alarm))
     else:
-        cases.append(("g-squared", f"G², random 20-variable discrete DAG, n = {n_g2:,}",
-                      lambda: _random_discrete(n_g2)))
-    for test, label, make in cases:
+        cases.append(("g-squared", "g-squared", f"G², random 20-variable discrete DAG, "
+                      f"n = {n_g2:,}", lambda: _random_discrete(n_g2)))
+    for key, test, label, make in cases:
         if only and test not in only:
             continue
         frame = make()
         fig = speedup(frame, test, repeat if test != "g-squared" else 1)
         fig["label"] = label
-        out[test] = fig
-        print(f"{test}: in-process {fig['in_process_s']:.2f} s, 2 processes "
+        fig["test"] = test
+        out[key] = fig
+        print(f"{key}: in-process {fig['in_process_s']:.2f} s, 2 processes "
               f"{fig['two_processes_s']:.2f} s, ratio {fig['speedup']:.2f}, CPU "
               f"{fig['cpu_in_process_s']:.2f} s vs {fig['cpu_two_processes_s']:.2f} s, "
               f"same edges {fig['same_edges']}, load {os.getloadavg()[0]:.1f}",
@@ -216,9 +222,10 @@ def _autogroup() -> str:
 
 
 def format_section(figures: dict, machine: str, quick: bool, repeat: int,
-                   load: float = float("nan")) -> str:
+                   load: float = float("nan"), context: str = "") -> str:
     lines = [SECTION, "",
-             "Speed-up of a whole search on 2 local worker processes (`--jobs 2`) over the "
+             "Speed-up of a whole search on 2 processes (`--jobs 2`: this process and one "
+             "local worker) over the "
              "same search in-process: best in-process time / best 2-process time, the two "
              f"run alternately {repeat} time(s) in one run (worker start-up included). "
              "Measured by `python tests/benchmarks/bench_parallel.py --write "
@@ -227,7 +234,8 @@ def format_section(figures: dict, machine: str, quick: bool, repeat: int,
              "2 processes | every batch spread: s, CPU s, cores got | same edges | goal |",
              "|---|---|---|---|---|---|---|---|---|"]
     goals = {"kci": "≥ 1.6", "mixed": "≥ 1.6", "g-squared": "≥ 0.9 (never > 10 % slower)"}
-    for test, fig in figures.items():
+    for key, fig in figures.items():
+        test = fig.get("test", key)
         lines.append(f"| {fig['label']} | {fig['tests']} | {fig['in_process_s']:.2f} | "
                      f"{fig['two_processes_s']:.2f} | {fig['speedup']:.2f} | "
                      f"{fig['cpu_in_process_s']:.2f} / {fig['cpu_two_processes_s']:.2f} | "
@@ -236,21 +244,20 @@ def format_section(figures: dict, machine: str, quick: bool, repeat: int,
                      f"{'yes' if fig['same_edges'] else 'NO'} | {goals.get(test, '')} |")
     lines += ["", "CPU seconds count this process and its worker processes (their sum, "
               "best of the runs); the 2-process search may keep batches in-process when the "
-              "workers get too little CPU for spreading to pay (docs/parallel.md). The "
+              "processes get too little CPU for spreading to pay (docs/parallel.md). The "
               "'every batch spread' run (once) turns that rule off: its CPU against the "
               "in-process CPU is the extra work spreading costs, and 'cores got' is the CPU "
-              "the two workers got together per second of the batches' wall time (2 on free "
+              "the two processes got together per second of the batches' wall time (2 on free "
               "cores). On free cores the 2-process time would be about the in-process time × "
               "(spread CPU / in-process CPU) / 2, when the chunks balance."
               + _vectorised_note(figures), "",
               f"Machine: {machine}. Measured {time.strftime('%Y-%m-%d %H:%M')}"
               + (" (quick sizes)" if quick else "") + f"; load average {load:.1f} before and "
-              f"{os.getloadavg()[0]:.1f} after the run. The machine was shared with 7 other "
-              "people's work at the time, and Linux shared the CPU between sessions "
-              f"(sched_autogroup_enabled = {_autogroup()}): with the cores busy, two worker "
-              "processes got about the CPU time of one, so the wall-clock ratios here are "
-              "what a busy machine gives, not what free cores give. Absolute times vary "
-              "between runs; the ratios compare runs made alternately within one run.", ""]
+              f"{os.getloadavg()[0]:.1f} after the run; Linux shares the CPU between "
+              f"sessions (sched_autogroup_enabled = {_autogroup()}), so work of other sessions "
+              "takes CPU from both sides alike. " + (context + " " if context else "")
+              + "Absolute times vary between runs; the ratios compare runs made alternately "
+              "within one run.", ""]
     return "\n".join(lines)
 
 
@@ -262,6 +269,8 @@ def main(argv=None) -> dict:
     parser.add_argument("--only", choices=["kci", "mixed", "g-squared"], action="append",
                         help="run only these searches")
     parser.add_argument("--write", metavar="FILE.md", help="update this file's section")
+    parser.add_argument("--context", default="",
+                        help="one sentence on what else ran on the machine, for the record")
     args = parser.parse_args(argv)
     load = os.getloadavg()[0]
     figures = parallel_figures(args.quick, args.repeat, args.only)
@@ -269,7 +278,7 @@ def main(argv=None) -> dict:
         from discovery.bench import machine_description, replace_section
         replace_section(Path(args.write), format_section(
             figures, machine_description(), args.quick,
-            args.repeat or (1 if args.quick else 3), load))
+            args.repeat or (1 if args.quick else 3), load, args.context))
     return {f"{k}_speedup_2_processes": v["speedup"] for k, v in figures.items()}
 
 
