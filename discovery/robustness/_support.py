@@ -353,7 +353,7 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
         The data cannot be searched at all.
     """
     from ..search._discover import _as_dataset
-    from ..settings import SearchSettings
+    from ..settings import SearchSettings, default_collider_rule
 
     if isinstance(resamples, bool) or not isinstance(resamples, Integral) or resamples < 1:
         raise SettingsError(f"The 'resamples' parameter of support must be an int of at "
@@ -367,6 +367,9 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
     if not isinstance(discover_options.get("test", "fisher-z"), str):
         raise SettingsError("The 'test' parameter of support must be a test name (a test "
                             "object carries its own data and cannot be resampled)")
+    if discover_options.get("collider_rule", "") is None:  # the mode's default, as discover
+        discover_options["collider_rule"] = default_collider_rule(
+            bool(discover_options.get("hidden_causes")))
     # validate the search options once, before any work is sent out
     check = {k: discover_options[k] for k in ("alpha", "max_depth", "collider_rule",
                                                "unrelated", "margin") if k in discover_options}
