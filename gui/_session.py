@@ -256,7 +256,7 @@ class AnalysisJob:
             prepared = _prepare_included(self.dataset, self.included, s.missing)
             options = dict(test=s.test, max_depth=s.max_depth, collider_rule=s.collider_rule,
                            knowledge=restrict_knowledge(self.knowledge, prepared.variables),
-                           progress=report, cancel=self.cancel)
+                           hidden_causes=s.hidden_causes, progress=report, cancel=self.cancel)
             if s.unrelated != "significance":
                 options.update(unrelated=s.unrelated, margin=s.margin)
             extra = dict(self.options)

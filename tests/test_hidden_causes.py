@@ -767,3 +767,32 @@ def test_window_session_collider_rule_follows_the_hidden_causes_toggle():
     session.set_setting("collider_rule", "conservative")  # a choice is kept
     session.set_setting("hidden_causes", True)
     assert session.settings.collider_rule == "conservative"
+
+
+def test_support_counts_the_marks_of_each_end():
+    # a → x ← h → y ← b with h hidden: the PAG is a o→ x ↔ y ←o b (Zhang 2008; Spirtes,
+    # Glymour & Scheines 2000, §6.7). Resampled searches in the hidden-causes mode must count
+    # the mark at each end, not only the direction: x ↔ y is an arrowhead at both ends.
+    from discovery import support
+    frame = _hidden_frame(n=2000)
+    r = support(frame, resamples=12, seed=3, hidden_causes=True)
+    assert r.settings["hidden_causes"] is True
+    for p in r.pairs:  # each end's marks add up to the searches where the pair had marks
+        for ends in (p.marks_at_a, p.marks_at_b):
+            assert sum(ends.values()) == pytest.approx(p.adjacent - p.contested)
+    xy = r.pair("x", "y")
+    assert xy.marks_at_a.get("arrow", 0) > 0.75 and xy.marks_at_b.get("arrow", 0) > 0.75
+    assert xy.undirected == pytest.approx(xy.adjacent)  # the old counts cannot tell ↔ apart
+    ax = r.pair("a", "x")
+    assert ax.marks_at_b.get("arrow", 0) > 0.75 and ax.marks_at_a.get("circle", 0) > 0.75
+    assert sorted(e.arrow() for e in r.consensus) == ["a o→ x", "b o→ y", "x ↔ y"]
+    # the marks survive the JSON document and a new cut-off
+    from discovery.robustness import SupportResult
+    again = SupportResult.from_dict(r.to_dict())
+    assert again.pair("x", "y").marks_at_a == xy.marks_at_a
+    assert sorted(e.arrow() for e in again.at_cutoff(0.6).consensus) == \
+        ["a o→ x", "b o→ y", "x ↔ y"]
+    assert "arrow_at_a" in r.to_csv().splitlines()[0]
+    # without hidden causes the consensus keeps its former reading (directions only)
+    plain = support(frame, resamples=6, seed=3)
+    assert all(e.kind in ("directed", "undirected", "contested") for e in plain.consensus)
