@@ -68,8 +68,9 @@ def _build_parser() -> argparse.ArgumentParser:
     d.add_argument("--knowledge", metavar="FILE",
                    help="knowledge file (TOML or JSON): locked/forbidden edges and "
                         "directions, stages")
-    d.add_argument("--collider-rule", default="standard", choices=COLLIDER_RULES,
-                   help="how unshielded triples are judged colliders (default: standard)")
+    d.add_argument("--collider-rule", default=None, choices=COLLIDER_RULES,
+                   help="how unshielded triples are judged colliders (default: standard; "
+                        "majority with --hidden-causes, Colombo & Maathuis 2014)")
     d.add_argument("--missing", default="drop", choices=MISSING_POLICIES,
                    help="drop rows with any missing value, or delete test-wise "
                         "(default: drop)")

@@ -43,7 +43,7 @@ from discovery.files import parse_json_checked, read_text_checked, write_text_at
 from discovery.independence import PValueCache
 from discovery.knowledge import Knowledge
 from discovery.result import SearchResult
-from discovery.settings import SearchSettings
+from discovery.settings import SearchSettings, default_collider_rule
 
 from . import _layout
 from ._events import EventGroup
@@ -256,7 +256,7 @@ class AnalysisJob:
             prepared = _prepare_included(self.dataset, self.included, s.missing)
             options = dict(test=s.test, max_depth=s.max_depth, collider_rule=s.collider_rule,
                            knowledge=restrict_knowledge(self.knowledge, prepared.variables),
-                           progress=report, cancel=self.cancel)
+                           hidden_causes=s.hidden_causes, progress=report, cancel=self.cancel)
             if s.unrelated != "significance":
                 options.update(unrelated=s.unrelated, margin=s.margin)
             extra = dict(self.options)
@@ -617,6 +617,11 @@ class Session:
         if name not in values:
             self._error(f"unknown setting {name!r}; choose one of {list(values)}", "Settings")
             return False
+        if name == "hidden_causes" and values["collider_rule"] == default_collider_rule(
+                bool(values["hidden_causes"])):
+            # the collider rule follows the mode's default unless one was chosen: majority
+            # with hidden causes, standard without (as discover(collider_rule=None))
+            values["collider_rule"] = default_collider_rule(bool(value))
         values[name] = value
         try:
             settings = SearchSettings(**values)

@@ -82,6 +82,23 @@ def _is_ancestral(directed, bidirected, observed):
 def reference_pag(dag, latent):
     """``{(a, b): (mark at a, mark at b)}`` (a < b) of the PAG, from every Markov-equivalent
     MAG over the observed variables, with the number of MAGs found."""
+    edges, members = reference_class(dag, latent)
+    pag = {}
+    for a, b in edges:
+        ends = {(("arrow" if c in ("<-", "<>") else "tail"),
+                 ("arrow" if c in ("->", "<>") else "tail"))
+                for c in (m[(a, b)] for m in members)}
+        at_a = {e[0] for e in ends}
+        at_b = {e[1] for e in ends}
+        pag[(a, b)] = (at_a.pop() if len(at_a) == 1 else "circle",
+                       at_b.pop() if len(at_b) == 1 else "circle")
+    return pag, len(members)
+
+
+def reference_class(dag, latent):
+    """Every MAG over the observed variables with the DAG's d-separations among them:
+    ``(edges, members)``, each member ``{(a, b): "->" | "<-" | "<>"}`` over the edges
+    (a < b)."""
     observed = sorted(set(dag.nodes) - set(latent))
     truth = _separations(dag, observed)
     separated = {(x, y) for x, y, _ in truth}
@@ -133,16 +150,7 @@ def reference_pag(dag, latent):
             del choice[edges[i]]
 
     extend(0)
-    pag = {}
-    for a, b in edges:
-        ends = {(("arrow" if c in ("<-", "<>") else "tail"),
-                 ("arrow" if c in ("->", "<>") else "tail"))
-                for c in (m[(a, b)] for m in members)}
-        at_a = {e[0] for e in ends}
-        at_b = {e[1] for e in ends}
-        pag[(a, b)] = (at_a.pop() if len(at_a) == 1 else "circle",
-                       at_b.pop() if len(at_b) == 1 else "circle")
-    return pag, len(members)
+    return edges, members
 
 
 def true_mag(dag, latent):
@@ -195,8 +203,10 @@ def random_hidden_dag(rng, n_observed, n_latent, p_edge):
 def _check(dag, latent):
     expected, n_members = reference_pag(dag, latent)
     assert n_members >= 1
-    result = discover(None, test=DSeparationOracle(dag, latent=latent), hidden_causes=True)
-    assert engine_pag(result) == expected, (sorted(dag.edges), latent)
+    for rule in (None, "standard"):  # the default (majority) and the standard rule
+        result = discover(None, test=DSeparationOracle(dag, latent=latent),
+                          hidden_causes=True, collider_rule=rule)
+        assert engine_pag(result) == expected, (sorted(dag.edges), latent, rule)
     return n_members
 
 
@@ -515,20 +525,22 @@ def test_command_line_option(tmp_path, capsys):
 
 @pytest.mark.slow
 def test_arrowhead_precision_on_invented_data_with_hidden_causes():
-    # The finite-sample check of the benchmark (docs/benchmarks.md), fixed seeds: 15 observed
-    # variables, 3 hidden common causes, n = 5,000, conservative collider rule (Ramsey, Zhang
-    # & Spirtes 2006) at α = 0.001 (a small α at large n is common practice, no source).
-    # Each arrowhead is judged against the true DAG: b is not an ancestor of a.
+    # The finite-sample check of the benchmark (docs/benchmarks.md), fixed seeds 0–19: 15
+    # observed variables, 3 hidden common causes, n = 5,000, with the defaults a user gets
+    # (α = 0.05; the majority collider rule of Colombo & Maathuis 2014, this mode's default).
+    # Each arrowhead is judged against the true DAG: b is not an ancestor of a. The issue's
+    # target is 0.9.
     from discovery.bench import _hidden_data
     from discovery.metrics import ancestral_mark_scores
     right = total = 0
-    for seed in range(10):
+    for seed in range(20):
         dag, data = _hidden_data(15, 2, 3, 5000, seed)
-        s = ancestral_mark_scores(discover(data, hidden_causes=True, alpha=0.001,
-                                           collider_rule="conservative"), dag)
+        result = discover(data, hidden_causes=True)
+        assert result.settings.collider_rule == "majority"
+        s = ancestral_mark_scores(result, dag)
         right += round(s.arrowhead_precision * s.arrowheads)
         total += s.arrowheads
-    assert total > 50 and right / total >= 0.9
+    assert total > 100 and right / total >= 0.9
 
 
 def test_command_line_budget(tmp_path, capsys):
@@ -539,3 +551,248 @@ def test_command_line_budget(tmp_path, capsys):
     assert "--pds-budget lots" in capsys.readouterr().err
     assert main(["discover", str(path), "--hidden-causes", "--pds-budget", "none",
                  "--quiet"]) == 0
+
+
+# -- control sets on a PAG: completeness against every member of the class -------------------
+#
+# Perković, Textor, Kalisch & Maathuis (2018, "Complete graphical characterization and
+# construction of adjustment sets in Markov equivalence classes of ancestral graphs", JMLR 18,
+# Def. 4.1 and Thm. 4.4): a set Z is an adjustment set for the effect of x on y relative to a
+# PAG exactly when it is one relative to every MAG of its class. For one MAG their
+# generalised adjustment criterion reads, with every path of a MAG of definite status:
+#   0. every proper causal path x → … → y starts with a *visible* edge out of x (Zhang 2008,
+#      Def. 3.1: some v not adjacent to d has an edge into x, or a collider path into x whose
+#      inner nodes are all parents of d);
+#   1. Z holds no descendant of a node other than x on a proper causal path;
+#   2. Z blocks every proper non-causal path from x to y (m-separation: a non-collider in Z,
+#      or a collider with no descendant in Z; Richardson & Spirtes 2002, §3.1).
+# Written here over all simple paths of the MAG (at most 6 observed variables), without the
+# engine. A set valid in a MAG must also be valid in its canonical DAG (the MAG represents
+# it), which the adjustment criterion of Shpitser, VanderWeele & Robins (2010) decides with
+# networkx d-separation: a check of this reference itself.
+
+
+def _mag_marks(member):
+    """``mark[(a, b)]``: the mark at b on the edge a – b of a MAG given as a class member."""
+    mark = {}
+    for (a, b), c in member.items():
+        mark[(a, b)] = "arrow" if c in ("->", "<>") else "tail"
+        mark[(b, a)] = "arrow" if c in ("<-", "<>") else "tail"
+    return mark
+
+
+def _mag_valid(mark, observed, x, y, z):
+    """The generalised adjustment criterion in one MAG (see the section notes)."""
+    skeleton = nx.Graph([(a, b) for a, b in mark])
+    skeleton.add_nodes_from(observed)
+    directed = nx.DiGraph([(a, b) for (a, b), m in mark.items()
+                           if m == "arrow" and mark[(b, a)] == "tail"])
+    directed.add_nodes_from(observed)
+
+    def parent(a, b):  # a → b
+        return mark.get((a, b)) == "arrow" and mark[(b, a)] == "tail"
+
+    def visible(x, d):
+        for v in observed:
+            if v in (x, d) or skeleton.has_edge(v, d):
+                continue
+            for path in nx.all_simple_paths(skeleton, v, x):
+                inner = path[1:-1]
+                if d in inner or mark[(path[-2], x)] != "arrow":
+                    continue
+                if all(mark[(path[i - 1], path[i])] == "arrow"
+                       and mark[(path[i + 1], path[i])] == "arrow" and parent(path[i], d)
+                       for i in range(1, len(path) - 1)):
+                    return True
+        return False
+
+    paths = list(nx.all_simple_paths(skeleton, x, y))
+    causal = [p for p in paths if all(parent(a, b) for a, b in zip(p, p[1:]))]
+    if any(not visible(x, p[1]) for p in causal):
+        return False
+    forbidden = set()
+    for p in causal:
+        for w in p[1:]:
+            forbidden |= {w} | nx.descendants(directed, w)
+    if set(z) & forbidden:
+        return False
+    ancestors_of_z = set(z)
+    for w in z:
+        ancestors_of_z |= nx.ancestors(directed, w)
+    for p in paths:
+        if p in causal:
+            continue
+        blocked = False
+        for i in range(1, len(p) - 1):
+            collider = mark[(p[i - 1], p[i])] == "arrow" and mark[(p[i + 1], p[i])] == "arrow"
+            if (collider and p[i] not in ancestors_of_z) or (not collider and p[i] in z):
+                blocked = True
+                break
+        if not blocked:
+            return False
+    return True
+
+
+def _dag_adjustment_valid(dag, x, y, z):
+    """Adjustment criterion in a DAG (Shpitser, VanderWeele & Robins 2010) with networkx
+    d-separation in the proper back-door graph (van der Zander, Liśkiewicz & Textor 2014)."""
+    causal = {w for w in nx.descendants(dag, x) if w == y or y in nx.descendants(dag, w)}
+    forbidden = {x}
+    for w in causal:
+        forbidden |= {w} | nx.descendants(dag, w)
+    if set(z) & forbidden:
+        return False
+    pbd = dag.copy()
+    pbd.remove_edges_from([(x, w) for w in dag.successors(x) if w in causal])
+    return nx.is_d_separator(pbd, {x}, {y}, set(z))
+
+
+def _check_control_sets(dag, latent):
+    from discovery.effects import control_sets
+    edges, members = reference_class(dag, latent)
+    observed = sorted(set(dag.nodes) - set(latent))
+    result = discover(None, test=DSeparationOracle(dag, latent=latent), hidden_causes=True)
+    mags = [_mag_marks(m) for m in members]
+    canon = []
+    for m in members:
+        directed = [(a, b) if c == "->" else (b, a) for (a, b), c in m.items() if c != "<>"]
+        canon.append(_canonical_dag(directed, [e for e, c in m.items() if c == "<>"],
+                                    observed))
+    counts = {"pairs": 0, "identifiable": 0, "sets": 0}
+    for x in observed:
+        for y in observed:
+            if x == y:
+                continue
+            answer = control_sets(result, x, y)
+            assert answer.kind == "pag" and answer.optimal is None
+            candidates = list(_subsets(set(observed) - {x, y}))
+            valid = {}
+            for z in candidates:
+                per_member = [_mag_valid(mark, observed, x, y, z) for mark in mags]
+                for ok, d in zip(per_member, canon):
+                    if ok:  # the reference's own check: valid in the MAG ⇒ in its DAG
+                        assert _dag_adjustment_valid(d, x, y, z), (x, y, z)
+                valid[z] = all(per_member)
+                got = answer.check(z).valid
+                assert got == valid[z], (sorted(dag.edges), latent, x, y, z, got)
+            some = any(valid.values())
+            counts["pairs"] += 1
+            counts["identifiable"] += some
+            counts["sets"] += sum(valid.values())
+            # "no valid set" (not amenable, or amenable with an unblockable path) exactly
+            # when no set is valid in every member
+            assert answer.has_valid_set == some, (sorted(dag.edges), latent, x, y)
+            if not answer.amenable:
+                assert not some
+            if some:
+                assert valid[tuple(sorted(answer.canonical))]
+                truly_minimal = {z for z, ok in valid.items() if ok and not any(
+                    valid[s] for s in _subsets(z) if len(s) < len(z))}
+                listed = {tuple(sorted(s)) for s in answer.minimal}
+                assert listed <= truly_minimal, (x, y, listed, truly_minimal)
+                if answer.minimal_complete:
+                    assert listed == truly_minimal, (x, y, listed, truly_minimal)
+    return counts
+
+
+def test_control_sets_on_a_textbook_pag():
+    # a → x ↔ y ← b, x → c with a hidden cause h of x and y: no set is valid for x on y (the
+    # ↔ edge is a back-door path no measured set blocks), and the brute force agrees.
+    dag = nx.DiGraph([("h", "x"), ("h", "y"), ("a", "x"), ("b", "y"), ("x", "c")])
+    counts = _check_control_sets(dag, ["h"])
+    assert counts["pairs"] == 20
+    from discovery.effects import control_sets
+    result = discover(None, test=DSeparationOracle(dag, latent=["h"]), hidden_causes=True)
+    assert not control_sets(result, "x", "y").has_valid_set
+    # y ↔ x → c: x blocks the only path from y to c (the effect of y on c is zero)
+    assert [sorted(s) for s in control_sets(result, "y", "c").minimal] == [["x"]]
+
+
+def _random_control_case(seed):
+    rng = np.random.default_rng(500 + seed)
+    while True:
+        dag, latent = random_hidden_dag(rng, n_observed=4 + seed % 3, n_latent=1 + seed % 2,
+                                        p_edge=0.35 + 0.05 * (seed % 3))
+        if _observed_edges(dag, latent) <= 8:  # the brute force grows as 3^edges
+            return _check_control_sets(dag, latent)
+
+
+def test_control_sets_on_random_pags_match_every_member():
+    # every ordered pair, every candidate set, in each diagram; the cases must include
+    # identifiable and non-identifiable pairs, or the check would say little
+    # (4 and 5 observed variables here; 6 in the slow sweep)
+    totals = {"pairs": 0, "identifiable": 0, "sets": 0}
+    for seed in (0, 1, 3, 4):
+        for k, v in _random_control_case(seed).items():
+            totals[k] += v
+    assert 0 < totals["identifiable"] < totals["pairs"] and totals["sets"] > 0
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", range(4, 40))
+def test_control_sets_on_random_pags_sweep(seed):
+    _random_control_case(seed)
+
+
+def test_default_collider_rule_follows_the_mode():
+    # The hidden-causes mode defaults to the majority rule (Colombo & Maathuis 2014); the
+    # default mode keeps the standard rule; a rule the user chose is kept and no note added.
+    frame = _hidden_frame(n=800)
+    hidden = discover(frame, hidden_causes=True)
+    assert hidden.settings.collider_rule == "majority"
+    assert any("majority, the default of the hidden-causes mode" in n for n in hidden.notes)
+    plain = discover(frame)
+    assert plain.settings.collider_rule == "standard"
+    chosen = discover(frame, hidden_causes=True, collider_rule="standard")
+    assert chosen.settings.collider_rule == "standard"
+    assert not any("default of the hidden-causes mode" in n for n in chosen.notes)
+    # the colliders of the possible-d-sep phase follow the rule too: with an oracle every
+    # rule gives the same PAG (the middle of an unshielded triple of a MAG is in every or in
+    # no separating set; Richardson & Spirtes 2002)
+    dag = nx.DiGraph([("d", "a"), ("a", "c"), ("b", "a"), ("b", "c"), ("h", "d"), ("h", "b")])
+    pags = {rule: engine_pag(discover(None, test=DSeparationOracle(dag, latent=["h"]),
+                                      hidden_causes=True, collider_rule=rule))
+            for rule in ("standard", "majority", "conservative")}
+    assert pags["standard"] == pags["majority"] == pags["conservative"]
+
+
+def test_window_session_collider_rule_follows_the_hidden_causes_toggle():
+    from gui._session import Session
+    session = Session()
+    assert session.settings.collider_rule == "standard"
+    session.set_setting("hidden_causes", True)
+    assert session.settings.collider_rule == "majority"
+    session.set_setting("hidden_causes", False)
+    assert session.settings.collider_rule == "standard"
+    session.set_setting("collider_rule", "conservative")  # a choice is kept
+    session.set_setting("hidden_causes", True)
+    assert session.settings.collider_rule == "conservative"
+
+
+def test_support_counts_the_marks_of_each_end():
+    # a → x ← h → y ← b with h hidden: the PAG is a o→ x ↔ y ←o b (Zhang 2008; Spirtes,
+    # Glymour & Scheines 2000, §6.7). Resampled searches in the hidden-causes mode must count
+    # the mark at each end, not only the direction: x ↔ y is an arrowhead at both ends.
+    from discovery import support
+    frame = _hidden_frame(n=2000)
+    r = support(frame, resamples=12, seed=3, hidden_causes=True)
+    assert r.settings["hidden_causes"] is True
+    for p in r.pairs:  # each end's marks add up to the searches where the pair had marks
+        for ends in (p.marks_at_a, p.marks_at_b):
+            assert sum(ends.values()) == pytest.approx(p.adjacent - p.contested)
+    xy = r.pair("x", "y")
+    assert xy.marks_at_a.get("arrow", 0) > 0.75 and xy.marks_at_b.get("arrow", 0) > 0.75
+    assert xy.undirected == pytest.approx(xy.adjacent)  # the old counts cannot tell ↔ apart
+    ax = r.pair("a", "x")
+    assert ax.marks_at_b.get("arrow", 0) > 0.75 and ax.marks_at_a.get("circle", 0) > 0.75
+    assert sorted(e.arrow() for e in r.consensus) == ["a o→ x", "b o→ y", "x ↔ y"]
+    # the marks survive the JSON document and a new cut-off
+    from discovery.robustness import SupportResult
+    again = SupportResult.from_dict(r.to_dict())
+    assert again.pair("x", "y").marks_at_a == xy.marks_at_a
+    assert sorted(e.arrow() for e in again.at_cutoff(0.6).consensus) == \
+        ["a o→ x", "b o→ y", "x ↔ y"]
+    assert "arrow_at_a" in r.to_csv().splitlines()[0]
+    # without hidden causes the consensus keeps its former reading (directions only)
+    plain = support(frame, resamples=6, seed=3)
+    assert all(e.kind in ("directed", "undirected", "contested") for e in plain.consensus)

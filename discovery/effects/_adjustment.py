@@ -630,17 +630,17 @@ class _Criterion:
             return {w for u in part for w in moral[u]} - part
 
         def closest(part):
-            while True:
-                if y in part:
-                    return None
-                t = border(part)
-                if y in t:
-                    return None
-                sep = border(component({y}, t)) & t
-                bad = sep - allowed
-                if not bad:
-                    return frozenset(sep)
-                part = component({x}, sep & allowed)
+            """The minimal separator of allowed nodes closest to ``part`` (van der Zander,
+            Liśkiewicz & Textor 2019, FindMinSep): the part grows through every node that may
+            not be in a set (hidden, forbidden, not an ancestor), then the allowed nodes on
+            its border are cut down to those that also border the outcome's side."""
+            if y in part:
+                return None
+            side = component(part, allowed - part)
+            if y in side:
+                return None  # a path through nodes that may not be controlled for
+            t = border(side)
+            return frozenset(border(component({y}, t)) & t)
 
         found, queue = set(), []
         first = closest({x})

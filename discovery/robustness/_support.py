@@ -58,6 +58,12 @@ class PairSupport:
     """Support of one pair (shares of the resamples, each in [0, 1]).
 
     ``a_to_b + b_to_a + undirected + contested == adjacent``.
+
+    ``marks_at_a`` and ``marks_at_b`` count the mark at each end of the edge, ``{"tail",
+    "arrow", "circle"}`` → share of the resamples (contested edges, which have no marks, are
+    left out, so each sums to ``adjacent - contested``). They matter for the hidden-causes
+    search, whose ``a o→ b``, ``a ↔ b`` and ``a o–o b`` all count as ``undirected`` above;
+    empty in documents written before they were added.
     """
 
     a: str
@@ -67,11 +73,24 @@ class PairSupport:
     b_to_a: float
     undirected: float
     contested: float
+    marks_at_a: dict = field(default_factory=dict, compare=False)
+    marks_at_b: dict = field(default_factory=dict, compare=False)
 
     def to_dict(self) -> dict:
         return {"a": self.a, "b": self.b, "adjacent": self.adjacent, "a_to_b": self.a_to_b,
                 "b_to_a": self.b_to_a, "undirected": self.undirected,
-                "contested": self.contested}
+                "contested": self.contested, "marks_at_a": dict(self.marks_at_a),
+                "marks_at_b": dict(self.marks_at_b)}
+
+    def consensus_marks(self) -> tuple[str, str] | None:
+        """``(mark at a, mark at b)``: at each end the mark found in more than half of the
+        resamples where the pair is adjacent, else ``"circle"`` (undecided); None when no
+        mark was counted."""
+        if not (self.marks_at_a and self.marks_at_b):
+            return None
+        return tuple(next((m for m, share in sorted(ends.items())
+                           if share > 0.5 * self.adjacent), "circle")
+                     for ends in (self.marks_at_a, self.marks_at_b))
 
     def consensus_kind(self) -> str:
         """The orientation found in more than half of the resamples where the pair is
@@ -133,13 +152,14 @@ class SupportResult:
                 return p
             if (p.a, p.b) == (b, a):
                 return PairSupport(a, b, p.adjacent, p.b_to_a, p.a_to_b, p.undirected,
-                                   p.contested)
+                                   p.contested, p.marks_at_b, p.marks_at_a)
         return None
 
     def at_cutoff(self, cutoff: float) -> "SupportResult":
         """The same tables with another consensus cut-off (and bound)."""
         cutoff = _check_cutoff(cutoff)
-        return replace(self, cutoff=cutoff, consensus=_consensus(self.pairs, cutoff),
+        return replace(self, cutoff=cutoff,
+                       consensus=_consensus(self.pairs, cutoff, _is_pag(self.settings)),
                        false_edges_bound=_bound(self.method, cutoff, self.mean_edges,
                                                 len(self.variables)))
 
@@ -172,13 +192,16 @@ class SupportResult:
                                     "not supported (this Edgewise reads 1)")
         try:
             pairs = tuple(PairSupport(p["a"], p["b"], *(float(p[k]) for k in
-                                                        ("adjacent",) + _ORIENTATIONS))
+                                                        ("adjacent",) + _ORIENTATIONS),
+                                      *({str(m): float(v) for m, v in p.get(k, {}).items()}
+                                        for k in ("marks_at_a", "marks_at_b")))
                           for p in doc["pairs"])
             method, cutoff = doc["method"], float(doc["cutoff"])
             variables = tuple(doc["variables"])
             mean_edges = float(doc["mean_edges"])
             return cls(method=method, resamples=int(doc["resamples"]), seed=doc.get("seed"),
-                       cutoff=cutoff, pairs=pairs, consensus=_consensus(pairs, cutoff),
+                       cutoff=cutoff, pairs=pairs,
+                       consensus=_consensus(pairs, cutoff, _is_pag(doc.get("settings", {}))),
                        false_edges_bound=_bound(method, cutoff, mean_edges, len(variables)),
                        mean_edges=mean_edges, variables=variables, rows=int(doc["rows"]),
                        failed=int(doc.get("failed", 0)), settings=dict(doc.get("settings", {})),
@@ -194,10 +217,14 @@ class SupportResult:
     def to_csv(self) -> str:
         """One row per pair: its shares and whether it is in the consensus."""
         kept = {frozenset((e.source, e.target)) for e in self.consensus}
+        marks = ("tail", "arrow", "circle")
         rows = [[p.a, p.b, p.adjacent, p.a_to_b, p.b_to_a, p.undirected, p.contested,
-                 "yes" if frozenset((p.a, p.b)) in kept else "no"] for p in self.pairs]
+                 "yes" if frozenset((p.a, p.b)) in kept else "no",
+                 *(ends.get(m, 0.0) for ends in (p.marks_at_a, p.marks_at_b) for m in marks)]
+                for p in self.pairs]
         return csv_text(["a", "b", "adjacent", "a_to_b", "b_to_a", "undirected", "contested",
-                         "in_consensus"], rows)
+                         "in_consensus", *(f"{m}_at_{end}" for end in ("a", "b")
+                                           for m in marks)], rows)
 
     def as_text(self) -> str:
         size = self.rows if self.method == "bootstrap" else self.rows // 2
@@ -241,7 +268,13 @@ def _bound(method, cutoff, mean_edges, n_vars) -> float | None:
     return float(mean_edges ** 2 / ((2.0 * cutoff - 1.0) * pairs))
 
 
-def _consensus(pairs, cutoff) -> tuple[Edge, ...]:
+def _is_pag(settings) -> bool:
+    return bool(isinstance(settings, dict) and settings.get("hidden_causes"))
+
+
+def _consensus(pairs, cutoff, pag=False) -> tuple[Edge, ...]:
+    """Edges with support ≥ cutoff; from searches with hidden causes (PAGs) each end takes
+    its majority mark (a circle where no mark has a majority)."""
     edges = []
     for p in pairs:
         if p.adjacent + 1e-12 < cutoff:
@@ -249,7 +282,14 @@ def _consensus(pairs, cutoff) -> tuple[Edge, ...]:
         kind = p.consensus_kind()
         why = (f"support {p.adjacent:.2f}: {p.a}→{p.b} {p.a_to_b:.2f}, {p.b}→{p.a} "
                f"{p.b_to_a:.2f}, undirected {p.undirected:.2f}, contested {p.contested:.2f}")
-        if kind == "a_to_b":
+        marks = p.consensus_marks() if pag else None
+        if marks is not None and kind != "contested":
+            why += "; marks " + ", ".join(
+                f"at {v}: " + " ".join(f"{m} {share:.2f}" for m, share in sorted(ends.items()))
+                for v, ends in ((p.a, p.marks_at_a), (p.b, p.marks_at_b)))
+            edges.append(Edge.from_marks(p.a, p.b, marks[0], marks[1], reason=why,
+                                         reason_kind="support"))
+        elif kind == "a_to_b":
             edges.append(Edge(p.a, p.b, "directed", why, "support"))
         elif kind == "b_to_a":
             edges.append(Edge(p.b, p.a, "directed", why, "support"))
@@ -291,7 +331,7 @@ def _search_each(frame, method, options, streams, discover):
         found = []
         for e in result.edges:
             a, b = sorted((e.source, e.target))
-            found.append((a, b, orientation_of(e, a, b)))
+            found.append((a, b, orientation_of(e, a, b), e.mark_at(a), e.mark_at(b)))
         out.append((index, found))
     return out
 
@@ -353,7 +393,7 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
         The data cannot be searched at all.
     """
     from ..search._discover import _as_dataset
-    from ..settings import SearchSettings
+    from ..settings import SearchSettings, default_collider_rule
 
     if isinstance(resamples, bool) or not isinstance(resamples, Integral) or resamples < 1:
         raise SettingsError(f"The 'resamples' parameter of support must be an int of at "
@@ -367,9 +407,13 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
     if not isinstance(discover_options.get("test", "fisher-z"), str):
         raise SettingsError("The 'test' parameter of support must be a test name (a test "
                             "object carries its own data and cannot be resampled)")
+    if discover_options.get("collider_rule", "") is None:  # the mode's default, as discover
+        discover_options["collider_rule"] = default_collider_rule(
+            bool(discover_options.get("hidden_causes")))
     # validate the search options once, before any work is sent out
     check = {k: discover_options[k] for k in ("alpha", "max_depth", "collider_rule",
-                                               "unrelated", "margin") if k in discover_options}
+                                               "unrelated", "margin", "hidden_causes")
+             if k in discover_options}
     effective = SearchSettings(test=discover_options.get("test", "fisher-z"),
                                test_options=dict(discover_options.get("test_options") or {}),
                                **check)
@@ -410,14 +454,24 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
                                   "constant in the resamples); use more rows or method "
                                   "'bootstrap'")
     counts: dict = {}
+    ends: dict = {}
     for edges in finished:
-        for a, b, orientation in edges:
+        for a, b, orientation, at_a, at_b in edges:
             row = counts.setdefault((a, b), dict.fromkeys(("adjacent",) + _ORIENTATIONS, 0))
             row["adjacent"] += 1
             row[orientation] += 1
+            if orientation != "contested":
+                marks = ends.setdefault((a, b), ({}, {}))
+                for tally, mark in zip(marks, (at_a, at_b)):
+                    tally[mark] = tally.get(mark, 0) + 1
     total = len(finished)
+    def shares(tally):
+        return {m: c / total for m, c in sorted(tally.items())}
+
     pairs = tuple(sorted(
-        (PairSupport(a, b, **{k: v / total for k, v in row.items()})
+        (PairSupport(a, b, **{k: v / total for k, v in row.items()},
+                     marks_at_a=shares(ends.get((a, b), ({}, {}))[0]),
+                     marks_at_b=shares(ends.get((a, b), ({}, {}))[1]))
          for (a, b), row in counts.items()),
         key=lambda p: (-p.adjacent, p.a, p.b)))
     mean_edges = float(np.mean([len(e) for e in finished]))
@@ -427,7 +481,8 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
     if options.get("knowledge") is not None:
         settings["knowledge"] = options["knowledge"].to_dict()
     return SupportResult(method=method, resamples=total, seed=recorded_seed, cutoff=cutoff,
-                         pairs=pairs, consensus=_consensus(pairs, cutoff),
+                         pairs=pairs,
+                         consensus=_consensus(pairs, cutoff, _is_pag(settings)),
                          false_edges_bound=_bound(method, cutoff, mean_edges, len(variables)),
                          mean_edges=mean_edges, variables=variables, rows=len(frame),
                          failed=len(streams) - total, settings=settings)

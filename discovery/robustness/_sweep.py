@@ -259,8 +259,11 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
     """
     from ..search import discover
     from ..search._discover import _as_dataset, _test_for
-    from ..settings import SearchSettings, check_parameter
+    from ..settings import SearchSettings, check_parameter, default_collider_rule
 
+    if discover_options.get("collider_rule", "") is None:  # the mode's default, as discover
+        discover_options["collider_rule"] = default_collider_rule(
+            bool(discover_options.get("hidden_causes")))
     if margins is not None:
         ladder = check_ladder(margins, "margins")
         alpha = discover_options.pop("alpha", 0.05)

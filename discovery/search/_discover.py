@@ -26,7 +26,7 @@ from ..executor import blas_threads
 from ..independence import FisherZ, IndependenceTest, PValueCache, make_test
 from ..independence._base import canonical_triple
 from ..result import Edge, LazyRecords, Removal, SearchResult, TestLog
-from ..settings import SearchSettings, check_parameter
+from ..settings import SearchSettings, check_parameter, default_collider_rule
 from ..knowledge import Knowledge
 from ._fci import PDS_AUTO_FACTOR, PDS_AUTO_MINIMUM, possible_d_sep_phase
 from ._orientation import orient
@@ -37,7 +37,7 @@ __all__ = ["discover"]
 
 
 def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int | None = None,
-             knowledge: Knowledge | None = None, collider_rule: str = "standard",
+             knowledge: Knowledge | None = None, collider_rule: str | None = None,
              missing: str = "drop", columns=None, cache: PValueCache | None = None,
              executor=None, progress: Callable | None = None, cancel=None,
              test_options: dict | None = None, hidden_causes: bool = False,
@@ -59,7 +59,14 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         Largest conditioning-set size (the **depth**); None for no limit.
     knowledge : Knowledge, optional
         Locked and forbidden edges and directions, and stages.
-    collider_rule : {"standard", "conservative", "majority"}
+    collider_rule : {"standard", "conservative", "majority"} or None
+        How an unshielded triple x – z – y is judged a collider from the separating sets of
+        x and y (see :func:`discovery.search.orient`). None (the default) chooses by mode:
+        ``"standard"``, and ``"majority"`` with ``hidden_causes=True`` — there the majority
+        rule of Colombo & Maathuis (2014, JMLR 15) makes the possible-d-separating sets and
+        so the skeleton independent of the order of the variables and gives fewer false
+        arrowheads on finite samples (docs/hidden-causes.md). The rule used is recorded in
+        ``result.settings.collider_rule``.
     missing : {"drop", "test-wise"}
         Missing-value policy when ``data`` is a DataFrame.
     columns : list of str, optional
@@ -162,6 +169,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     else:
         raise SettingsError(f"The 'test' parameter of discover must be a test name or an "
                             f"IndependenceTest. Got {type(test).__name__} instead.")
+    rule_by_default = collider_rule is None
+    if rule_by_default:
+        collider_rule = default_collider_rule(hidden_causes)
     settings = SearchSettings(test=test_name, alpha=alpha, max_depth=max_depth,
                               collider_rule=collider_rule, missing=missing,
                               test_options=dict(test_options or {}),
@@ -201,6 +211,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # choice the search makes are then independent of the data's column order.
     names = tuple(test_obj.variables)
     notes: list[str] = []
+    if rule_by_default and settings.hidden_causes:
+        notes.append("collider rule: majority, the default of the hidden-causes mode (Colombo "
+                     "& Maathuis 2014): a triple is a collider when its middle is in fewer "
+                     "than half of the separating sets found; choose another with "
+                     "collider_rule (--collider-rule)")
     if dataset is not None:
         knowledge = _knowledge_within(knowledge, dataset, notes)
     knowledge.check_variables(names)
@@ -215,6 +230,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     cancelled = _cancel_check(cancel)
     if executor is not None and cancelled is not None and hasattr(executor, "watching"):
         executor = executor.watching(cancelled)  # Stop reaches work running on workers
+    owned_cache = cache is None
     if cache is None and settings.collider_rule == "standard":
         # Nothing could be reused: no earlier search, and the standard rule runs no test
         # twice. Skip the cache's bookkeeping.
@@ -259,22 +275,41 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
         if equivalence:
             _restore_signs(skeleton)
         t1 = t_pds = time.perf_counter()
+        collider_tally = [0, 0]  # cache hits and misses of the collider rules' tests
+
+        def collider_pvalues(batch):
+            hits, misses = cache.hits, cache.misses
+            out = sign * cache.pvalues(test_obj, batch, executor=executor, canonical=True)
+            collider_tally[0] += cache.hits - hits
+            collider_tally[1] += cache.misses - misses
+            return out
+
+        def finder(adjacent):
+            return _separating_sets_finder(adjacent, collider_pvalues, sign * settings.alpha,
+                                           depth, cancelled)
+
         if settings.hidden_causes:
-            _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
-                                  cancelled, test_obj, executor, pds_budget, notes)
+            pds_pvalues = pvalues
+            if owned_cache and isinstance(cache, PValueCache):
+                # No later step reads these tests again (the collider rules ask only for
+                # subsets of neighbours, which this phase skips): count them, skip storing.
+                def pds_pvalues(idx):
+                    cache.misses += len(idx)
+                    return test_obj.pvalues_array(idx, executor=executor)
+            _possible_d_sep_phase(skeleton, names, pds_pvalues, settings, depth, locked,
+                                  progress, cancelled, test_obj, executor, pds_budget, notes,
+                                  finder)
             t_pds = time.perf_counter()
-        hits1, misses1 = cache.hits, cache.misses  # the search's tests: those in the log
+        # the search's tests (those in the log); the collider rules' tests are counted apart
+        hits1 = cache.hits - collider_tally[0]
+        misses1 = cache.misses - collider_tally[1]
         if skeleton.memory_limit:
             from ..exceptions import SearchLimitWarning
             notes.append(skeleton.memory_limit)
             warnings.warn(skeleton.memory_limit, SearchLimitWarning, stacklevel=2)
         separating_sets_of = None
         if settings.collider_rule != "standard":
-            separating_sets_of = _separating_sets_finder(
-                skeleton.adjacent,
-                lambda batch: sign * cache.pvalues(test_obj, batch, executor=executor,
-                                                   canonical=True),
-                sign * settings.alpha, depth, cancelled)
+            separating_sets_of = finder(skeleton.adjacent)
         if settings.hidden_causes:
             orientation = orient_pag(
                 skeleton.adjacent, skeleton.sepsets, names=names, rank=rank,
@@ -320,13 +355,20 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
 
 
 def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, progress,
-                          cancelled, test_obj, executor, budget, notes):
+                          cancelled, test_obj, executor, budget, notes, finder):
     """FCI's second adjacency phase (:mod:`._fci`): edges are removed from ``skeleton`` in
     place, their separating sets recorded and the tests added to its log."""
     if budget == "auto":
         budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * sum(len(p) for _, p in skeleton.log))
+    # The colliders that shape the possible-d-separating sets follow the search's collider
+    # rule: with the conservative or majority rule the sets, and so the final skeleton, do
+    # not depend on which separating set the adjacency search happened to find first
+    # (Colombo & Maathuis 2014, JMLR 15, section on FCI).
+    rule = settings.collider_rule
     marks = collider_marks(len(names), skeleton.adjacent, skeleton.sepsets, names=names,
-                           rank=list(range(len(names))),
+                           rank=list(range(len(names))), collider_rule=rule,
+                           separating_sets_of=None if rule == "standard"
+                           else finder(skeleton.adjacent),
                            unseparated=skeleton.unseparated_forbidden)[0]
     phase = possible_d_sep_phase(
         skeleton.adjacent, marks, pvalues, alpha=settings.alpha, max_depth=depth,
@@ -435,28 +477,49 @@ def _names_text(s, names, rank):
 
 
 def _separating_sets_finder(adjacent, pvalues, alpha, depth, cancelled):
-    """Every independent set among subsets of the final neighbours of x and of y."""
+    """Every independent set among subsets of the neighbours of x and of y in ``adjacent``
+    (the conservative and majority collider rules, Colombo & Maathuis 2014).
+
+    ``find.prefetch(pairs)`` gathers the candidate sets of many pairs into one batch of
+    tests (one call to the cache instead of one per pair); ``find(x, y)`` then reads them."""
     memo = {}
+    adjacent = [set(a) for a in adjacent]  # a snapshot: the caller may change its skeleton
+
+    def candidates_of(key):
+        x, y = key
+        out, seen = [], set()
+        for base in (adjacent[x] - {y}, adjacent[y] - {x}):
+            top = len(base) if depth is None else min(len(base), depth)
+            for k in range(top + 1):
+                for s in combinations(sorted(base), k):
+                    if s not in seen:
+                        seen.add(s)
+                        out.append((x, y, s))
+        return out
+
+    def prefetch(pairs):
+        keys = sorted({(min(x, y), max(x, y)) for x, y in pairs} - memo.keys())
+        if not keys:
+            return
+        if cancelled is not None and cancelled():
+            from ..exceptions import SearchCancelled
+            raise SearchCancelled("the search was stopped before it finished")
+        per_key = [candidates_of(key) for key in keys]
+        batch = [c for cands in per_key for c in cands]
+        p = pvalues(batch) if batch else np.empty(0)
+        at = 0
+        for key, cands in zip(keys, per_key):
+            memo[key] = [set(c[2]) for c, pv in zip(cands, p[at:at + len(cands)])
+                         if pv > alpha]
+            at += len(cands)
 
     def find(x, y):
         key = (min(x, y), max(x, y))
         if key not in memo:
-            if cancelled is not None and cancelled():
-                from ..exceptions import SearchCancelled
-                raise SearchCancelled("the search was stopped before it finished")
-            candidates = []
-            seen = set()
-            for base in (adjacent[x] - {y}, adjacent[y] - {x}):
-                top = len(base) if depth is None else min(len(base), depth)
-                for k in range(top + 1):
-                    for s in combinations(sorted(base), k):
-                        if s not in seen:
-                            seen.add(s)
-                            candidates.append((key[0], key[1], s))
-            p = pvalues(candidates) if candidates else np.empty(0)
-            memo[key] = [set(c[2]) for c, pv in zip(candidates, p) if pv > alpha]
+            prefetch([key])
         return memo[key]
 
+    find.prefetch = prefetch
     return find
 
 

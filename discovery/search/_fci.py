@@ -212,15 +212,16 @@ def _candidates(pair, bx, by, adjacent, k):
     """Sets of size k from Possible-D-Sep(x), then Possible-D-Sep(y) (each once), skipping
     those inside x's or y's final neighbours (already tried by the adjacency search)."""
     x, y = pair
-    seen = set()
-    for base in (bx, by):
-        for s in combinations(base, k):
-            if s in seen:
-                continue
-            seen.add(s)
-            members = set(s)
-            if members <= adjacent[x] or members <= adjacent[y]:
-                continue
+    # a set lies inside x's neighbours when it misses every non-neighbour of x
+    away_x = frozenset(v for v in (*bx, *by) if v not in adjacent[x])
+    away_y = frozenset(v for v in (*bx, *by) if v not in adjacent[y])
+    for s in combinations(bx, k):
+        if not away_x.isdisjoint(s) and not away_y.isdisjoint(s):
+            yield s
+    in_x = frozenset(bx)
+    for s in combinations(by, k):
+        if not in_x.issuperset(s) and not away_x.isdisjoint(s) \
+                and not away_y.isdisjoint(s):  # (sets inside bx came from the first loop)
             yield s
 
 

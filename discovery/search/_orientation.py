@@ -143,6 +143,9 @@ def orient(adjacent: list[set[int]], sepsets: dict, *, names, rank, collider_rul
                   if y not in adjacent[x]]
     pairs = [(min(x, y), max(x, y)) for x, _, y in unshielded]
     wanted = [pair for pair in pairs if pair not in unseparated]
+    prefetch = getattr(separating_sets_of, "prefetch", None)
+    if collider_rule != "standard" and prefetch is not None:
+        prefetch(wanted)  # every pair's candidate sets in one batch of tests
     many = getattr(sepsets, "many", None)  # a SeparatingSets looks them up together
     found = iter(many(wanted) if many is not None else [sepsets[p] for p in wanted])
     for (x, z, y), pair in zip(unshielded, pairs):

@@ -114,6 +114,9 @@ def collider_marks(n: int, adjacent, sepsets, *, names, rank, collider_rule="sta
                   if y not in adjacent[x]]
     pairs = [(min(x, y), max(x, y)) for x, _, y in unshielded]
     wanted = [p for p in pairs if p not in unseparated]
+    prefetch = getattr(separating_sets_of, "prefetch", None)
+    if collider_rule != "standard" and prefetch is not None:
+        prefetch(wanted)  # every pair's candidate sets in one batch of tests
     many = getattr(sepsets, "many", None)
     found = iter(many(wanted) if many is not None else [sepsets[p] for p in wanted])
     for (x, z, y), pair in zip(unshielded, pairs):

@@ -33,6 +33,22 @@ def test_session_sweep_equals_the_library_and_is_saved(collider_csv, tmp_path):
     assert _open(t, collider_csv) and t.sweep is None and t.support is None  # new data
 
 
+def test_session_sweep_and_resample_follow_the_hidden_causes_toggle(collider_csv):
+    # with Hidden causes ticked, each rung and each resample is the hidden-causes search
+    # (the library's sweep with hidden_causes=True gives the same rungs)
+    from discovery import sweep
+    s = _open(Session(), collider_csv)
+    assert s.set_setting("hidden_causes", True)
+    assert s.run_analysis_inline("sweep", alphas=[0.01, 0.2])
+    assert all(r.settings.hidden_causes for r in s.sweep.results)
+    library = sweep(s.dataset.frame[list(s.included)], alphas=[0.01, 0.2], hidden_causes=True)
+    assert [[e.arrow() for e in r.edges] for r in s.sweep.results] == \
+        [[e.arrow() for e in r.edges] for r in library.results]
+    assert s.run_analysis_inline("support", resamples=4, seed=3)
+    assert s.support.settings["hidden_causes"] is True
+    assert all(p.marks_at_a for p in s.support.pairs if p.contested < p.adjacent)
+
+
 def test_session_unrelated_rule_reaches_the_search(collider_csv):
     s = _open(Session(), collider_csv)
     assert not s.set_unrelated("equivalence", 1.5)  # refused with the engine's line
