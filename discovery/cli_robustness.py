@@ -22,8 +22,12 @@ def _search_options(p, *, alpha: bool = True) -> None:
     p.add_argument("--max-depth", type=int, default=None, metavar="N",
                    help="largest conditioning-set size (default: no limit)")
     p.add_argument("--knowledge", metavar="FILE", help="knowledge file (TOML or JSON)")
-    p.add_argument("--collider-rule", default="standard", choices=COLLIDER_RULES,
-                   help="how unshielded triples are judged colliders (default: standard)")
+    p.add_argument("--collider-rule", default=None, choices=COLLIDER_RULES,
+                   help="how unshielded triples are judged colliders (default: standard; "
+                        "majority with --hidden-causes, Colombo & Maathuis 2014)")
+    p.add_argument("--hidden-causes", action="store_true", dest="hidden_causes",
+                   help="allow unmeasured common causes (FCI) in every search: partial "
+                        "ancestral graphs (docs/hidden-causes.md)")
     p.add_argument("--missing", default="drop", choices=MISSING_POLICIES,
                    help="drop incomplete rows, or delete test-wise (default: drop)")
     p.add_argument("--columns", metavar="A,B,...", help="comma-separated columns to include")
@@ -142,6 +146,8 @@ def _common(args):
         knowledge.check_variables(dataset.variables, source=args.knowledge)
     options = {"test": args.test, "max_depth": args.max_depth, "knowledge": knowledge,
                "collider_rule": args.collider_rule}
+    if args.hidden_causes:
+        options["hidden_causes"] = True
     if args.unrelated != "significance" or args.margin is not None:
         options.update(unrelated=args.unrelated, margin=args.margin)
     return dataset, options, outputs
@@ -203,7 +209,7 @@ class _Progress:
 
 
 def _cmd_sweep(args) -> int:
-    from .cli import CAUTION
+    from .cli import CAUTION, CAUTION_HIDDEN
     from .robustness import sweep
     dataset, options, outputs = _common(args)
     ladder = {}
@@ -226,12 +232,12 @@ def _cmd_sweep(args) -> int:
         written = [str(p) for p in outputs.values() if p is not None]
         if written:
             print("\nWrote: " + ", ".join(written))
-        print("\n" + CAUTION)
+        print("\n" + (CAUTION_HIDDEN if args.hidden_causes else CAUTION))
     return 0
 
 
 def _cmd_support(args) -> int:
-    from .cli import CAUTION
+    from .cli import CAUTION, CAUTION_HIDDEN
     from .robustness import support
     dataset, options, outputs = _common(args)
     options.update(alpha=args.alpha)
@@ -248,7 +254,7 @@ def _cmd_support(args) -> int:
         written = [str(p) for p in outputs.values() if p is not None]
         if written:
             print("\nWrote: " + ", ".join(written))
-        print("\n" + CAUTION)
+        print("\n" + (CAUTION_HIDDEN if args.hidden_causes else CAUTION))
     return 0
 
 

@@ -9,6 +9,7 @@ so the usual search must put arrowheads at both ends (from the model's structure
 with networkx d-separation on the full diagram).
 """
 
+import json
 import subprocess
 import sys
 from pathlib import Path
@@ -96,3 +97,20 @@ def test_the_office_hidden_cause_shows_as_bidirected_with_hidden_causes_allowed(
     e = r.edge("coffee_sales", "printer_pages")
     assert e is not None and e.kind == "bidirected"
     assert [x for x in r.edges if x.kind == "bidirected"] == [e]
+
+
+def test_sweep_and_support_commands_search_with_hidden_causes(tmp_path, capsys):
+    # The same invented office data through the commands: every rung and every resample is
+    # a hidden-causes search (FCI), so the hidden cause of coffee_sales and printer_pages
+    # shows as ↔ (Spirtes, Meek & Richardson 1999), and the caution is that mode's.
+    from discovery.cli import main
+    data = str(ROOT / "example_sets" / "office_building" / "data.csv")
+    assert main(["sweep", data, "--hidden-causes", "--alphas", "0.01,0.05",
+                 "--out", str(tmp_path / "s.json")]) == 0
+    sweep_doc = json.loads((tmp_path / "s.json").read_text())
+    assert all(r["settings"]["hidden_causes"] for r in sweep_doc["results"])
+    assert main(["support", data, "--hidden-causes", "--resamples", "6", "--seed", "2",
+                 "--out", str(tmp_path / "p.json")]) == 0
+    printed = capsys.readouterr().out
+    assert "coffee_sales ↔ printer_pages" in printed and "majority marks" in printed
+    assert "hidden common causes are allowed" in printed

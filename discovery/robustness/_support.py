@@ -237,10 +237,16 @@ class SupportResult:
             lines.append(f"Expected falsely selected pairs at this cut-off ≤ "
                          f"{self.false_edges_bound:.3g} (Meinshausen & Bühlmann 2010)")
         width = max([len(f"{p.a} — {p.b}") for p in self.pairs] + [4])
-        lines.append(f"{'pair':<{width}}  adjacent   a→b   b→a  undir.  contested")
+        pag = _is_pag(self.settings)
+        lines.append(f"{'pair':<{width}}  adjacent   a→b   b→a  undir.  contested"
+                     + ("  majority marks" if pag else ""))
         for p in self.pairs:
-            lines.append(f"{p.a + ' — ' + p.b:<{width}}  {p.adjacent:8.2f}  {p.a_to_b:4.2f}"
-                         f"  {p.b_to_a:4.2f}  {p.undirected:6.2f}  {p.contested:9.2f}")
+            row = (f"{p.a + ' — ' + p.b:<{width}}  {p.adjacent:8.2f}  {p.a_to_b:4.2f}"
+                   f"  {p.b_to_a:4.2f}  {p.undirected:6.2f}  {p.contested:9.2f}")
+            marks = p.consensus_marks() if pag else None
+            if marks is not None:  # the mark found at each end in most resamples
+                row += "  " + Edge.from_marks(p.a, p.b, *marks).arrow()
+            lines.append(row)
         lines += ["", "Cautions: " + " ".join(self.cautions)]
         return "\n".join(lines)
 
