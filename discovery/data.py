@@ -630,6 +630,12 @@ def _check_shape(text: str, label: str, sep: str) -> list[str]:
 
 # --------------------------------------------------------------------------- preparing
 
+def _copies_on_write() -> bool:
+    """True when pandas copies a frame's data only when it is changed (copy-on-write: always
+    from pandas 3, by option in pandas 2)."""
+    return int(pd.__version__.split(".")[0]) >= 3 or pd.options.mode.copy_on_write is True
+
+
 def _frame_fingerprint(frame: pd.DataFrame) -> str:
     """SHA-256 of the column names and values: numeric columns as float64 bytes, any other
     column as its CSV text (a canonical rendering that is cheap for large numeric tables)."""
@@ -747,16 +753,12 @@ def _looks_like_identifier(series: pd.Series) -> bool:
     return not pd.api.types.is_bool_dtype(series.dtype)
 
 
-def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool]]:
-    """Kind, distinct-level count and "all whole numbers" of every float64 column, computed
-    with numpy for the whole table at once (large numeric tables are the common case).
+_PROFILE_BYTES = 64 << 20  # working memory of one piece of the float profile
 
-    Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
-    """
-    floats = [n for n, t in zip(names, table.dtypes) if t == np.float64]
-    if not floats:
-        return {}
-    values = table[floats].to_numpy()
+
+def _float_extremes(values: np.ndarray):
+    """Smallest and largest value of each column, whether all are whole numbers and whether
+    there are at most two values (missing values aside)."""
     with np.errstate(invalid="ignore"):
         gaps = np.isnan(values)
         if gaps.any():  # smallest and largest values, whole numbers and two values: of the rest
@@ -768,6 +770,25 @@ def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool
             lo, hi = values.min(axis=0), values.max(axis=0)
             whole = np.all(np.isfinite(values) & (values == np.round(values)), axis=0)
             two = np.all((values == lo) | (values == hi), axis=0)
+    return lo, hi, whole, two
+
+
+def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool]]:
+    """Kind, distinct-level count and "all whole numbers" of every float64 column, computed
+    with numpy for many columns at once (large numeric tables are the common case).
+
+    Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
+    """
+    floats = [n for n, t in zip(names, table.dtypes) if t == np.float64]
+    if not floats:
+        return {}
+    values = table[floats].to_numpy()
+    # in pieces of columns: the temporaries (rounded values, masks) of a piece stay within
+    # _PROFILE_BYTES instead of adding a copy of a large table (reductions per column: the
+    # same answers as one pass)
+    step = max(1, _PROFILE_BYTES // (8 * max(len(values), 1)))
+    parts = [_float_extremes(values[:, a:a + step]) for a in range(0, values.shape[1], step)]
+    lo, hi, whole, two = (np.concatenate(p) for p in zip(*parts))
     infinite = (lo == -np.inf) | (hi == np.inf)  # an infinity among the values
     out = {}
     for j, n in enumerate(floats):
@@ -936,7 +957,9 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     if duplicates:
         raise _fail(label, f"column name {duplicates[0]!r} appears "
                            f"{counted[duplicates[0]]} times; rename the copies")
-    table = frame.copy()
+    # the caller's frame is never modified: a copy, lazy (no bytes copied until a column is
+    # changed) where pandas copies on write, as pandas 3 always does
+    table = frame.copy(deep=not _copies_on_write())
     table.columns = names
     table = table.reset_index(drop=True)
 
