@@ -324,7 +324,7 @@ def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, pro
     """FCI's second adjacency phase (:mod:`._fci`): edges are removed from ``skeleton`` in
     place, their separating sets recorded and the tests added to its log."""
     if budget == "auto":
-        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * sum(len(p) for _, p in skeleton.log))
+        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * skeleton.log.tests)
     marks = collider_marks(len(names), skeleton.adjacent, skeleton.sepsets, names=names,
                            rank=list(range(len(names))),
                            unseparated=skeleton.unseparated_forbidden)[0]
@@ -524,7 +524,7 @@ def _software() -> dict:
 def _restore_signs(skeleton) -> None:
     """Undo the sign flip of the equivalence rule in the skeleton's record (p-values back to
     the equivalence p-values)."""
-    skeleton.log[:] = [(idx, -p) for idx, p in skeleton.log]
+    skeleton.log.transform_pvalues(np.negative)
     sepsets = skeleton.sepsets
     sepsets._blocks = [(rows, -p) for rows, p in sepsets._blocks]
     skeleton.locked_conflicts[:] = [(x, y, s, -p) for x, y, s, p in skeleton.locked_conflicts]

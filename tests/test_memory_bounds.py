@@ -1,0 +1,211 @@
+"""Memory bounds of large searches: the evidence kept within a budget (the rest in a temporary
+file), Fisher's z eliminating wide sets in pieces, the intake without copies of the table.
+
+Each mechanism must change where the bytes live, never what the search reports: results with
+and without it are compared whole (skeleton, separating sets, evidence rows, JSON), and the
+evidence read back from the file is checked against p-values computed outside the project
+(statsmodels residuals and scipy's normal distribution, Fisher 1921).
+"""
+
+import json
+import pickle
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from scipy import stats
+
+from discovery import DegenerateDataWarning, FisherZ, discover
+from discovery import _evidence
+from discovery._evidence import EvidenceLog
+from discovery.data import prepare_frame
+from discovery.independence import _fisher_z
+from discovery.simulate import random_dag, sample_linear_gaussian
+
+
+@pytest.fixture(scope="module")
+def frame():
+    # expected degree 4 on 14 variables: the search runs to depth 3 or more
+    rng = np.random.default_rng(5)
+    return sample_linear_gaussian(random_dag(14, expected_degree=4, rng=rng), 3000, rng=rng)
+
+
+def _document(result) -> dict:
+    doc = result.to_dict()
+    doc.pop("timings")
+    doc["counts"]["levels"] = [{k: v for k, v in lv.items() if k != "seconds"}
+                               for lv in doc["counts"]["levels"]]
+    return doc
+
+
+def _blocks(n_blocks=7, seed=0):
+    rng = np.random.default_rng(seed)
+    out = []
+    for k in range(n_blocks):
+        rows = int(rng.integers(0, 40))
+        idx = rng.integers(0, 500, size=(rows, 2 + k % 4)).astype(np.uint16)
+        p = rng.random(rows)
+        if rows:
+            p[0] = np.nan  # NaN p-values (untestable) must come back as NaN
+        out.append((idx, p))
+    return out
+
+
+# -- the evidence log ------------------------------------------------------------------------
+
+def test_evidence_beyond_the_budget_goes_to_a_file_and_reads_back_the_same():
+    blocks = _blocks()
+    budget = 300
+    log = EvidenceLog(blocks, budget=budget)
+    assert log.spilled and 0 < log.nbytes_in_memory <= budget
+    assert log.tests == sum(len(p) for _, p in blocks)
+    assert len(log) == len(blocks)
+    log.freeze()  # as a result's evidence: nothing read back can be changed
+    back = list(log)
+    for (idx, p), (idx2, p2) in zip(blocks, back):
+        assert idx2.dtype == idx.dtype and idx2.shape == idx.shape
+        assert np.array_equal(idx, idx2)
+        assert np.array_equal(p, p2, equal_nan=True)
+        assert not idx2.flags.writeable and not p2.flags.writeable
+    assert len(back) == len(blocks)
+
+
+def test_evidence_without_a_budget_stays_in_memory():
+    log = EvidenceLog(_blocks(), budget=None)
+    assert not log.spilled and log.nbytes_on_disk == 0
+
+
+def test_spilled_evidence_transforms_pickles_and_closes():
+    blocks = _blocks(seed=1)
+    log = EvidenceLog(blocks, budget=0)  # everything in the file
+    assert log.nbytes_in_memory == 0 and log.spilled
+    log.transform_pvalues(np.negative)
+    for (_, p), (_, p2) in zip(blocks, log):
+        assert np.array_equal(-p, p2, equal_nan=True)
+    copy = pickle.loads(pickle.dumps(log))
+    for (i1, p1), (i2, p2) in zip(log, copy):
+        assert np.array_equal(i1, i2) and np.array_equal(p1, p2, equal_nan=True)
+    log.close()
+    assert log.tests == 0 and list(log) == []
+
+
+def test_a_full_disk_is_one_clear_line(monkeypatch):
+    from discovery import ResourceLimitError
+
+    def no_space(handle, array, offset):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(_evidence, "_write_at", no_space)
+    log = EvidenceLog(budget=0)
+    with pytest.raises(ResourceLimitError, match="free disk space there or point TMPDIR"):
+        log.append(_blocks()[1])
+
+
+def test_search_results_are_identical_with_the_evidence_spilled(frame, monkeypatch):
+    usual = discover(frame)
+    assert not usual.tests._blocks.spilled
+    monkeypatch.setattr(_evidence, "EVIDENCE_MEMORY_CAP", 2048)  # a tiny budget
+    spilled = discover(frame)
+    log = spilled.tests._blocks
+    assert log.spilled and log.nbytes_in_memory <= 2048  # the budget is honoured
+    assert spilled.counts["depth_reached"] >= 3
+    assert spilled.edges == usual.edges
+    assert tuple(spilled.removed) == tuple(usual.removed)  # separating sets and p-values
+    assert list(spilled.tests) == list(usual.tests)  # every evidence row, in order
+    a, b = next((e.source, e.target) for e in usual.edges)
+    assert spilled.evidence(a, b) == usual.evidence(a, b)  # what `edgewise explain` reads
+    assert json.dumps(_document(spilled)) == json.dumps(_document(usual))
+    again = pickle.loads(pickle.dumps(spilled.tests))  # evidence sent to another process
+    assert list(again) == list(usual.tests)
+
+
+def test_spilled_evidence_matches_statsmodels_and_scipy(frame, monkeypatch):
+    # Reference: partial correlation from statsmodels OLS residuals, z = atanh(r) sqrt(n-|S|-3),
+    # the two-sided p-value from scipy.stats.norm (Fisher 1921). Rows from the file.
+    monkeypatch.setattr(_evidence, "EVIDENCE_MEMORY_CAP", 0)
+    result = discover(frame)
+    assert result.tests._blocks.nbytes_in_memory == 0
+    rows = list(result.tests)
+    rng = np.random.default_rng(0)
+    wide = [r for r in rows if len(r[2]) >= 2]
+    for x, y, given, p in [rows[i] for i in rng.choice(len(rows), 6, replace=False)] + wide[:4]:
+        if given:
+            design = sm.add_constant(frame[list(given)])
+            rx = sm.OLS(frame[x], design).fit().resid
+            ry = sm.OLS(frame[y], design).fit().resid
+        else:
+            rx, ry = frame[x] - frame[x].mean(), frame[y] - frame[y].mean()
+        r = np.corrcoef(rx, ry)[0, 1]
+        z = np.arctanh(r) * np.sqrt(len(frame) - len(given) - 3)
+        assert p == pytest.approx(2 * stats.norm.sf(abs(z)), rel=1e-6, abs=1e-300)
+
+
+def test_the_depth_guard_counts_the_disk(frame, monkeypatch):
+    # with the memory budget spent but disk space to spare, the search is not cut short
+    from discovery.search import _skeleton
+    monkeypatch.setattr(_skeleton, "available_memory", lambda: 1)
+    monkeypatch.setattr(_skeleton, "free_disk_space", lambda: 1 << 40)
+    result = discover(frame)
+    assert result.counts["depth_reached"] == discover(frame).counts["depth_reached"] >= 3
+    assert not any("depth limited" in n for n in result.notes)
+    assert result.tests._blocks.spilled
+
+
+# -- Fisher's z in pieces --------------------------------------------------------------------
+
+def test_fisher_z_in_pieces_gives_the_same_numbers(frame, monkeypatch):
+    test = FisherZ(frame)
+    rng = np.random.default_rng(3)
+    n = len(test.variables)
+    for k in (2, 3, 5):
+        picks = [rng.choice(n, k + 2, replace=False) for _ in range(3000)]
+        rows = np.array([np.r_[np.sort(p[:2]), np.sort(p[2:])] for p in picks])
+        whole = test._batch_array(rows)[1]
+        monkeypatch.setattr(_fisher_z, "_ELIMINATION_BYTES", 1)  # pieces of 1,024 rows
+        pieces = test._batch_array(rows)[1]
+        monkeypatch.undo()
+        assert np.array_equal(whole, pieces, equal_nan=True)
+        # and against numpy's inverse of the correlation submatrix (r = -P01/sqrt(P00 P11))
+        c = test.correlation
+        for row, p in zip(rows[:5], pieces[:5]):
+            prec = np.linalg.inv(c[np.ix_(row, row)])
+            r = -prec[0, 1] / np.sqrt(prec[0, 0] * prec[1, 1])
+            z = np.arctanh(r) * np.sqrt(test.n - k - 3)
+            assert p == pytest.approx(2 * stats.norm.sf(abs(z)), rel=1e-8, abs=1e-300)
+
+
+# -- the intake ------------------------------------------------------------------------------
+
+def test_intake_profile_in_pieces_reads_the_same_kinds(monkeypatch):
+    rng = np.random.default_rng(2)
+    table = pd.DataFrame({
+        "cont": rng.normal(size=200), "whole": rng.integers(0, 5, 200).astype(float),
+        "two": rng.integers(0, 2, 200).astype(float), "const": np.full(200, 3.0),
+        "gappy": np.where(rng.random(200) < 0.1, np.nan, rng.normal(size=200)),
+        "inf": np.r_[np.inf, rng.normal(size=199)]})
+    with pytest.warns(DegenerateDataWarning, match="'const' is constant"):
+        whole = prepare_frame(table, missing="test-wise")
+    from discovery import data
+    monkeypatch.setattr(data, "_PROFILE_BYTES", 1)  # one column a piece
+    with pytest.warns(DegenerateDataWarning, match="'const' is constant"):
+        pieces = prepare_frame(table, missing="test-wise")
+    assert dict(pieces.kinds) == dict(whole.kinds)
+    assert dict(pieces.excluded) == dict(whole.excluded)
+    assert pieces.notes == whole.notes
+
+
+def test_intake_leaves_the_callers_frame_alone_without_copying_it():
+    rng = np.random.default_rng(1)
+    table = pd.DataFrame({"a": rng.normal(size=50), "b": rng.normal(size=50),
+                          "flag": rng.choice(["yes", "no"], 50)})
+    before = table.copy(deep=True)
+    dataset = prepare_frame(table)
+    pd.testing.assert_frame_equal(table, before)  # "yes"/"no" was read as 1/0 on a copy
+    assert set(dataset.frame["flag"].unique()) <= {0, 1}
+    numeric = pd.DataFrame(rng.normal(size=(100, 4)), columns=list("wxyz"))
+    kept = prepare_frame(numeric).frame
+    if int(pd.__version__.split(".")[0]) >= 3:  # pandas copies on write: no bytes copied
+        assert np.shares_memory(kept.to_numpy(), numeric.to_numpy())
+    kept.iloc[0, 0] = 99.0  # a change to the search's table never reaches the caller's
+    assert numeric.iloc[0, 0] != 99.0
