@@ -209,3 +209,27 @@ def test_intake_leaves_the_callers_frame_alone_without_copying_it():
         assert np.shares_memory(kept.to_numpy(), numeric.to_numpy())
     kept.iloc[0, 0] = 99.0  # a change to the search's table never reaches the caller's
     assert numeric.iloc[0, 0] != 99.0
+
+
+# -- the p-value store's budget ----------------------------------------------------------------
+
+def test_a_sweep_with_a_small_store_gives_the_same_results(frame):
+    # a store that fills up keeps fewer p-values for later rungs to reuse, and changes nothing
+    # the sweep reports
+    from discovery import PValueCache
+    from discovery.robustness import sweep
+    alphas = [0.001, 0.01, 0.05]
+    usual = sweep(frame, alphas=alphas, cache=PValueCache(max_bytes=None))
+    small_cache = PValueCache(max_bytes=4000)
+    small = sweep(frame, alphas=alphas, cache=small_cache)
+    assert small_cache.nbytes <= 4000 and small_cache.not_kept > 0
+    assert small.edges == usual.edges
+    for a, b in zip(small.results, usual.results):
+        assert a.edges == b.edges and list(a.tests) == list(b.tests)
+        assert a.counts["tests"] == b.counts["tests"]
+        assert (a.counts["tests_computed"] + a.counts["tests_from_cache"]
+                == b.counts["tests_computed"] + b.counts["tests_from_cache"])
+    reused = [r.counts["tests_from_cache"] for r in small.results]
+    assert sum(reused) < sum(r.counts["tests_from_cache"] for r in usual.results)
+    assert any("p-value store was full" in n for r in small.results for n in r.notes)
+    assert not any("p-value store was full" in n for r in usual.results for n in r.notes)

@@ -236,6 +236,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
+    not_kept0 = getattr(cache, "not_kept", 0)
     rank = list(range(len(names)))  # indices follow name order (a list: fast lookups)
 
     def why_forbidden(a, b):
@@ -291,6 +292,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                 why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
                 unseparated=skeleton.unseparated_forbidden)
     t2 = time.perf_counter()
+    not_kept = getattr(cache, "not_kept", 0) - not_kept0
+    if not_kept:
+        notes.append(f"the p-value store was full ({cache.nbytes / 2**30:,.2f} GiB): "
+                     f"{not_kept:,} p-value(s) of this search were not kept, and a re-run "
+                     "(another α, knowledge) computes them again")
     for x, y, s, p in skeleton.locked_conflicts:
         orientation.conflicts.insert(0, (
             f"{names[x]} — {names[y]} is locked, but the data find them independent given "
