@@ -120,6 +120,19 @@ def test_search_results_are_identical_with_the_evidence_spilled(frame, monkeypat
     assert list(again) == list(usual.tests)
 
 
+@pytest.mark.parametrize("options", [
+    {"unrelated": "equivalence", "margin": 0.05},  # p-values' signs flipped and restored
+    {"hidden_causes": True, "pds_budget": None},  # the possible-d-sep phase adds evidence
+    {"collider_rule": "conservative"},  # extra tests through the p-value store
+])
+def test_other_search_modes_are_identical_with_the_evidence_spilled(frame, monkeypatch, options):
+    usual = discover(frame, **options)
+    monkeypatch.setattr(_evidence, "EVIDENCE_MEMORY_CAP", 0)
+    spilled = discover(frame, **options)
+    assert spilled.tests._blocks.spilled
+    assert json.dumps(_document(spilled)) == json.dumps(_document(usual))
+
+
 def test_spilled_evidence_matches_statsmodels_and_scipy(frame, monkeypatch):
     # Reference: partial correlation from statsmodels OLS residuals, z = atanh(r) sqrt(n-|S|-3),
     # the two-sided p-value from scipy.stats.norm (Fisher 1921). Rows from the file.
