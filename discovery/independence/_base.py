@@ -340,9 +340,10 @@ class PValueCache:
     max_bytes : int, "auto" or None
         The most bytes of keys and p-values the store holds (a store of 16 to 30 bytes a
         test would otherwise grow past the memory on a search of hundreds of millions of
-        tests). Once full it keeps answering and computing, but stores no new p-values:
-        a later search computes those again. ``"auto"`` (the default): a quarter of the
-        memory available when the store is made, at most 1 GiB; None: no limit.
+        tests). A batch whose new p-values would take it past this is answered but not
+        stored: a later search computes those again. ``"auto"`` (the default): a quarter of
+        the memory available when the store is made, at most 1 GiB; None: no limit. (Merging
+        its sorted runs briefly needs up to as much again as the largest run.)
 
     Attributes
     ----------
