@@ -88,6 +88,7 @@ from collections import Counter
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from functools import cached_property
+from itertools import islice
 from pathlib import Path
 
 import numpy as np
@@ -519,14 +520,29 @@ def _decode(raw: bytes, label: str) -> str:
     return text
 
 
-def _sniff_separator(lines: list[str], preferred: str | None) -> str:
+def _lines(text: str, *, keepends: bool = False) -> Iterator[str]:
+    """The lines of ``text`` one at a time: as ``text.split("\\n")`` gives them, or with
+    ``keepends`` as iterating over ``io.StringIO(text)`` does; a large table is then never
+    held again as a list of lines or as a buffer of 4 bytes a character."""
+    start = 0
+    while True:
+        end = text.find("\n", start)
+        if end < 0:
+            if start < len(text) or not keepends:  # (a file object yields no empty last line)
+                yield text[start:]
+            return
+        yield text[start:end + 1 if keepends else end]
+        start = end + 1
+
+
+def _sniff_separator(lines: Iterable[str], preferred: str | None) -> str:
     """The separator that splits the first lines into the same number (> 1) of cells.
 
     Quoted cells are honoured (``csv.reader``). Among separators that split consistently,
     the most cells wins; the extension's separator (``preferred``) breaks ties. With none
     consistent, the one most frequent in the header line is taken.
     """
-    sample = [line for line in lines if line.strip()][:20]
+    sample = list(islice((line for line in lines if line.strip()), 20))
     scores = {}
     for candidate in SEPARATORS:
         try:
@@ -565,13 +581,11 @@ def _parse_text(raw: bytes, label: str, preferred: str | None, *, sep=None,
     if isinstance(na_values, str):
         na_values = [na_values]
     markers = list(MISSING_MARKERS) + [str(v) for v in (na_values or ())]
-    lines = text.split("\n")
-    first = next((i for i, line in enumerate(lines) if line.strip()), None)
-    if first is None:
+    if not text or text.isspace():
         raise _fail(label, "the file holds only blank lines; export the table again with a "
                            "header line and at least one row")
     if sep is None:
-        sep = _sniff_separator(lines[first:], preferred)
+        sep = _sniff_separator(_lines(text), preferred)
         if sep == decimal:
             raise _fail(label, f"the detected separator {sep!r} is also the decimal mark; "
                                f"give the separator (--sep / sep=)")
@@ -584,8 +598,12 @@ def _parse_text(raw: bytes, label: str, preferred: str | None, *, sep=None,
                                f"{seen[name]} and {position}); rename one of them")
         seen[name] = position
 
+    # pandas reads the UTF-8 bytes (a StringIO would hold the text at 4 bytes a character);
+    # they are the file's own bytes when decoding and line ends changed nothing
+    data = raw if len(raw) == len(text) and text.isascii() else text.encode("utf-8")
+    del text
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=sep, na_values=markers,
+        frame = pd.read_csv(io.BytesIO(data), sep=sep, na_values=markers, encoding="utf-8",
                             keep_default_na=False, index_col=False, skipinitialspace=True,
                             decimal=decimal, thousands=thousands)
     except pd.errors.EmptyDataError:
@@ -608,7 +626,7 @@ def _check_shape(text: str, label: str, sep: str) -> list[str]:
 
     pandas silently pads short rows with missing values, so the count is checked here.
     """
-    reader = csv.reader(io.StringIO(text), delimiter=sep, skipinitialspace=True)
+    reader = csv.reader(_lines(text, keepends=True), delimiter=sep, skipinitialspace=True)
     header: list[str] | None = None
     try:
         for record in reader:

@@ -7,6 +7,8 @@ evidence read back from the file is checked against p-values computed outside th
 (statsmodels residuals and scipy's normal distribution, Fisher 1921).
 """
 
+import codecs
+import io
 import json
 import pickle
 
@@ -246,3 +248,31 @@ def test_a_sweep_with_a_small_store_gives_the_same_results(frame):
     assert sum(reused) < sum(r.counts["tests_from_cache"] for r in usual.results)
     assert any("p-value store was full" in n for r in small.results for n in r.notes)
     assert not any("p-value store was full" in n for r in usual.results for n in r.notes)
+
+
+# -- reading text tables -------------------------------------------------------------------
+
+def test_text_tables_read_the_same_whatever_their_bytes(tmp_path):
+    # the same table as plain ASCII with LF (pandas reads the file's own bytes), as UTF-8
+    # with a byte-order mark and CRLF line ends, and as UTF-16 (re-encoded first): the same
+    # frame, and the one pandas itself reads from the text (a quoted name with the separator
+    # inside, a blank line, a missing value); a non-ASCII name survives the re-encoding
+    from discovery.data import read_table
+    text = ('a,b,"c, quoted",größe\n1.5,2,"3",4\n-1e3,,5,6\n\n7,8,"9",10\n'
+            '0.25,1,"2",3\n')
+    ascii_text = text.replace("größe", "size")
+    files = {"plain.csv": ascii_text.encode("ascii"),
+             "bom_crlf.csv": codecs.BOM_UTF8 + ascii_text.replace("\n", "\r\n").encode("utf-8"),
+             "utf16.csv": ascii_text.encode("utf-16")}
+    frames = []
+    for name, data in files.items():
+        path = tmp_path / name
+        path.write_bytes(data)
+        frames.append(read_table(path, missing="test-wise").frame)
+    for other in frames[1:]:
+        pd.testing.assert_frame_equal(frames[0], other)
+    expected = pd.read_csv(io.StringIO(ascii_text), keep_default_na=False, na_values=[""])
+    pd.testing.assert_frame_equal(frames[0], expected.astype(float), check_dtype=False)
+    path = tmp_path / "named.csv"
+    path.write_bytes(text.encode("utf-8"))  # non-ASCII: re-encoded before pandas reads it
+    assert list(read_table(path, missing="test-wise").frame.columns)[-1] == "größe"
