@@ -88,6 +88,7 @@ from collections import Counter
 from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from functools import cached_property
+from itertools import islice
 from pathlib import Path
 
 import numpy as np
@@ -519,14 +520,29 @@ def _decode(raw: bytes, label: str) -> str:
     return text
 
 
-def _sniff_separator(lines: list[str], preferred: str | None) -> str:
+def _lines(text: str, *, keepends: bool = False) -> Iterator[str]:
+    """The lines of ``text`` one at a time: as ``text.split("\\n")`` gives them, or with
+    ``keepends`` as iterating over ``io.StringIO(text)`` does; a large table is then never
+    held again as a list of lines or as a buffer of 4 bytes a character."""
+    start = 0
+    while True:
+        end = text.find("\n", start)
+        if end < 0:
+            if start < len(text) or not keepends:  # (a file object yields no empty last line)
+                yield text[start:]
+            return
+        yield text[start:end + 1 if keepends else end]
+        start = end + 1
+
+
+def _sniff_separator(lines: Iterable[str], preferred: str | None) -> str:
     """The separator that splits the first lines into the same number (> 1) of cells.
 
     Quoted cells are honoured (``csv.reader``). Among separators that split consistently,
     the most cells wins; the extension's separator (``preferred``) breaks ties. With none
     consistent, the one most frequent in the header line is taken.
     """
-    sample = [line for line in lines if line.strip()][:20]
+    sample = list(islice((line for line in lines if line.strip()), 20))
     scores = {}
     for candidate in SEPARATORS:
         try:
@@ -565,13 +581,11 @@ def _parse_text(raw: bytes, label: str, preferred: str | None, *, sep=None,
     if isinstance(na_values, str):
         na_values = [na_values]
     markers = list(MISSING_MARKERS) + [str(v) for v in (na_values or ())]
-    lines = text.split("\n")
-    first = next((i for i, line in enumerate(lines) if line.strip()), None)
-    if first is None:
+    if not text or text.isspace():
         raise _fail(label, "the file holds only blank lines; export the table again with a "
                            "header line and at least one row")
     if sep is None:
-        sep = _sniff_separator(lines[first:], preferred)
+        sep = _sniff_separator(_lines(text), preferred)
         if sep == decimal:
             raise _fail(label, f"the detected separator {sep!r} is also the decimal mark; "
                                f"give the separator (--sep / sep=)")
@@ -584,8 +598,12 @@ def _parse_text(raw: bytes, label: str, preferred: str | None, *, sep=None,
                                f"{seen[name]} and {position}); rename one of them")
         seen[name] = position
 
+    # pandas reads the UTF-8 bytes (a StringIO would hold the text at 4 bytes a character);
+    # they are the file's own bytes when decoding and line ends changed nothing
+    data = raw if len(raw) == len(text) and text.isascii() else text.encode("utf-8")
+    del text
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=sep, na_values=markers,
+        frame = pd.read_csv(io.BytesIO(data), sep=sep, na_values=markers, encoding="utf-8",
                             keep_default_na=False, index_col=False, skipinitialspace=True,
                             decimal=decimal, thousands=thousands)
     except pd.errors.EmptyDataError:
@@ -608,7 +626,7 @@ def _check_shape(text: str, label: str, sep: str) -> list[str]:
 
     pandas silently pads short rows with missing values, so the count is checked here.
     """
-    reader = csv.reader(io.StringIO(text), delimiter=sep, skipinitialspace=True)
+    reader = csv.reader(_lines(text, keepends=True), delimiter=sep, skipinitialspace=True)
     header: list[str] | None = None
     try:
         for record in reader:
@@ -629,6 +647,12 @@ def _check_shape(text: str, label: str, sep: str) -> list[str]:
 
 
 # --------------------------------------------------------------------------- preparing
+
+def _copies_on_write() -> bool:
+    """True when pandas copies a frame's data only when it is changed (copy-on-write: always
+    from pandas 3, by option in pandas 2)."""
+    return int(pd.__version__.split(".")[0]) >= 3 or pd.options.mode.copy_on_write is True
+
 
 def _frame_fingerprint(frame: pd.DataFrame) -> str:
     """SHA-256 of the column names and values: numeric columns as float64 bytes, any other
@@ -747,16 +771,12 @@ def _looks_like_identifier(series: pd.Series) -> bool:
     return not pd.api.types.is_bool_dtype(series.dtype)
 
 
-def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool]]:
-    """Kind, distinct-level count and "all whole numbers" of every float64 column, computed
-    with numpy for the whole table at once (large numeric tables are the common case).
+_PROFILE_BYTES = 64 << 20  # working memory of one piece of the float profile
 
-    Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
-    """
-    floats = [n for n, t in zip(names, table.dtypes) if t == np.float64]
-    if not floats:
-        return {}
-    values = table[floats].to_numpy()
+
+def _float_extremes(values: np.ndarray):
+    """Smallest and largest value of each column, whether all are whole numbers and whether
+    there are at most two values (missing values aside)."""
     with np.errstate(invalid="ignore"):
         gaps = np.isnan(values)
         if gaps.any():  # smallest and largest values, whole numbers and two values: of the rest
@@ -768,6 +788,25 @@ def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool
             lo, hi = values.min(axis=0), values.max(axis=0)
             whole = np.all(np.isfinite(values) & (values == np.round(values)), axis=0)
             two = np.all((values == lo) | (values == hi), axis=0)
+    return lo, hi, whole, two
+
+
+def _float_profile(table: pd.DataFrame, names) -> dict[str, tuple[str, int, bool]]:
+    """Kind, distinct-level count and "all whole numbers" of every float64 column, computed
+    with numpy for many columns at once (large numeric tables are the common case).
+
+    Level counts above 11 are reported as 11 + 1; only their side of the cut-offs matters.
+    """
+    floats = [n for n, t in zip(names, table.dtypes) if t == np.float64]
+    if not floats:
+        return {}
+    values = table[floats].to_numpy()
+    # in pieces of columns: the temporaries (rounded values, masks) of a piece stay within
+    # _PROFILE_BYTES instead of adding a copy of a large table (reductions per column: the
+    # same answers as one pass)
+    step = max(1, _PROFILE_BYTES // (8 * max(len(values), 1)))
+    parts = [_float_extremes(values[:, a:a + step]) for a in range(0, values.shape[1], step)]
+    lo, hi, whole, two = (np.concatenate(p) for p in zip(*parts))
     infinite = (lo == -np.inf) | (hi == np.inf)  # an infinity among the values
     out = {}
     for j, n in enumerate(floats):
@@ -936,7 +975,9 @@ def _prepare(frame: pd.DataFrame, *, columns, exclude, missing: str, source: str
     if duplicates:
         raise _fail(label, f"column name {duplicates[0]!r} appears "
                            f"{counted[duplicates[0]]} times; rename the copies")
-    table = frame.copy()
+    # the caller's frame is never modified: a copy, lazy (no bytes copied until a column is
+    # changed) where pandas copies on write, as pandas 3 always does
+    table = frame.copy(deep=not _copies_on_write())
     table.columns = names
     table = table.reset_index(drop=True)
 

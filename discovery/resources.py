@@ -6,7 +6,8 @@ at once, about 600 bytes a pair at their peak (peak resident memory from
 ``resource.getrusage``: 4.8 GiB for 4,000 variables of 30 rows, 8.0 million pairs;
 docs/benchmarks.md), and a simulated table costs its float array, the frame and the CSV text
 written from it. Deeper levels are bounded as they start (see ``discovery.search``: a level
-whose evidence could outgrow the free memory is not run).
+whose evidence could outgrow the memory set aside for it and the free disk space for
+temporary files is not run; ``discovery._evidence`` keeps the evidence within that memory).
 """
 
 from __future__ import annotations

@@ -22,6 +22,7 @@ from typing import Mapping, NamedTuple, Sequence
 import networkx as nx
 import numpy as np
 
+from ._evidence import EvidenceLog
 from .exceptions import ResultFormatError
 from .files import parse_json_checked, read_text_checked, write_text_atomic
 from .knowledge import Knowledge
@@ -73,20 +74,23 @@ def _index_block(i) -> np.ndarray:
 class TestLog(Sequence):
     """Every test run by a search, stored compactly; reads as ``(x, y, given, pvalue)`` tuples.
 
-    The log is kept as blocks of index rows ``[x, y, s1..sk]`` with their p-values; tuples of
-    names are produced on first access, so a search that runs hundreds of thousands of tests
-    does not pay for tuples nobody reads.
+    The log is kept as blocks of index rows ``[x, y, s1..sk]`` with their p-values (a search's
+    :class:`~discovery._evidence.EvidenceLog`, whose later blocks may live in a temporary
+    file); tuples of names are produced on first access, so a search that runs hundreds of
+    thousands of tests does not pay for tuples nobody reads.
     """
 
-    __slots__ = ("_names", "_blocks", "_rows")
+    __slots__ = ("_names", "_blocks", "_rows", "_count")
 
     def __init__(self, names, blocks):
         self._names = tuple(names)
-        # integer index blocks keep their width (the search stores 32-bit ones)
-        self._blocks = tuple((_index_block(i), np.asarray(p, dtype=float)) for i, p in blocks)
-        for i, p in self._blocks:
-            i.setflags(write=False)
-            p.setflags(write=False)
+        if not isinstance(blocks, EvidenceLog):
+            # integer index blocks keep their width (the search stores 16-bit ones)
+            blocks = EvidenceLog((_index_block(i), np.asarray(p, dtype=float))
+                                 for i, p in blocks)
+        blocks.freeze()
+        self._blocks = blocks
+        self._count = blocks.tests
         self._rows = None
 
     @classmethod
@@ -121,7 +125,7 @@ class TestLog(Sequence):
         return self._rows
 
     def __len__(self):
-        return sum(len(p) for _, p in self._blocks)
+        return self._count
 
     def __getitem__(self, i):
         return self._materialise()[i]

@@ -275,7 +275,8 @@ def test_batch_sizes_do_not_change_the_skeleton(monkeypatch):
 
 def test_a_level_that_could_outgrow_the_memory_is_not_started(monkeypatch):
     # the hardening issue: never fail half-way (or be killed) for want of memory; stop
-    # deepening with a note instead. Here the machine is made to look nearly full.
+    # deepening with a note instead. Here the machine is made to look nearly full: no memory
+    # to keep the evidence in, and no disk space to spill it to.
     import warnings
 
     from discovery import SearchLimitWarning, discover
@@ -286,6 +287,7 @@ def test_a_level_that_could_outgrow_the_memory_is_not_started(monkeypatch):
     full = discover(frame)
     assert full.counts["depth_reached"] >= 2
     monkeypatch.setattr(_skeleton, "available_memory", lambda: 1)
+    monkeypatch.setattr(_skeleton, "free_disk_space", lambda: 1)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         limited = discover(frame)

@@ -286,6 +286,11 @@ class _SizeTable:
             self.runs[-1] = _merged_runs(k1, v1, k2, v2)
         self.size = sum(len(k) for k, _ in self.runs)
 
+    @property
+    def nbytes(self) -> int:
+        """Bytes of the stored keys and p-values."""
+        return sum(k.nbytes + v.nbytes for k, v in self.runs)
+
     def __len__(self):
         return self.size
 
@@ -309,6 +314,19 @@ def _sorted_run(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.nd
     return keys, values
 
 
+#: The p-value store keeps at most this many bytes by default ...
+CACHE_MEMORY_CAP = 1 << 30
+#: ... and at most this share of the memory available when it is made.
+CACHE_MEMORY_SHARE = 0.25
+
+
+def default_cache_budget() -> int:
+    """Bytes a new :class:`PValueCache` may hold: a quarter of the memory available, at most
+    1 GiB."""
+    from ..resources import available_memory
+    return int(min(CACHE_MEMORY_CAP, CACHE_MEMORY_SHARE * available_memory()))
+
+
 class PValueCache:
     """Thread-safe store of p-values keyed by test settings and the canonical triple.
 
@@ -316,13 +334,33 @@ class PValueCache:
     p-value already known for the same test settings. Lookups and inserts are vectorised
     (rows packed into 64-bit keys, kept sorted), so the cache costs little even for the
     hundreds of thousands of tests of a large search.
+
+    Parameters
+    ----------
+    max_bytes : int, "auto" or None
+        The most bytes of keys and p-values the store holds (a store of 16 to 30 bytes a
+        test would otherwise grow past the memory on a search of hundreds of millions of
+        tests). A batch whose new p-values would take it past this is answered but not
+        stored: a later search computes those again. ``"auto"`` (the default): a quarter of
+        the memory available when the store is made, at most 1 GiB; None: no limit. (Merging
+        its sorted runs briefly needs up to as much again as the largest run.)
+
+    Attributes
+    ----------
+    hits, misses : int
+        p-values answered from the store, and computed.
+    not_kept : int
+        p-values computed but not stored because the store was full.
     """
 
-    def __init__(self):
+    def __init__(self, max_bytes="auto"):
         self._store: dict[tuple, _SizeTable] = {}
         self._lock = threading.Lock()
         self.hits = 0
         self.misses = 0
+        self.not_kept = 0
+        self.max_bytes = default_cache_budget() if max_bytes == "auto" else max_bytes
+        self.nbytes = 0
 
     def pvalues(self, test: IndependenceTest, triples: Sequence[Triple], *,
                 executor=None, canonical: bool = False) -> np.ndarray:
@@ -351,7 +389,14 @@ class PValueCache:
             fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
             values[todo] = fresh
             with self._lock:
-                table.store(keys if len(todo) == len(keys) else keys[todo], fresh)
+                fresh_keys = keys if len(todo) == len(keys) else keys[todo]
+                size = fresh_keys.nbytes + fresh.nbytes
+                if self.max_bytes is None or self.nbytes + size <= self.max_bytes:
+                    before = table.nbytes
+                    table.store(fresh_keys, fresh)
+                    self.nbytes += table.nbytes - before
+                else:  # full: answer, but keep nothing more (a later search recomputes)
+                    self.not_kept += len(todo)
         with self._lock:
             self.misses += len(todo)
             self.hits += len(idx) - len(todo)
@@ -365,4 +410,4 @@ class PValueCache:
         """Forget every stored p-value."""
         with self._lock:
             self._store.clear()
-            self.hits = self.misses = 0
+            self.hits = self.misses = self.not_kept = self.nbytes = 0

@@ -36,6 +36,8 @@ __all__ = ["FisherZ"]
 # |r| is clipped below 1 so that atanh stays finite: a partial correlation this close to one
 # already gives a p-value far below any usable α.
 _R_MAX = 1.0 - 1e-12
+#: Working memory of the elimination for one piece of a batch (see _partial_correlations).
+_ELIMINATION_BYTES = 64 << 20
 
 
 def _fingerprint(values: np.ndarray) -> str:
@@ -193,9 +195,24 @@ def _partial_correlations(corr: np.ndarray, idx: np.ndarray) -> np.ndarray:
         return pick(0, 1)
     if k == 1:
         return _recurse(pick(0, 1), pick(0, 2), pick(1, 2))
-    vxx, vyy, vxy, ok = _eliminate(pick, k + 2, len(idx))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        r = vxy / np.sqrt(vxx * vyy)
+    # The elimination holds (k+2)(k+3)/2 arrays over the rows: a batch of wide sets goes in
+    # pieces that keep them within _ELIMINATION_BYTES (each row is computed on its own, so
+    # the pieces give the same numbers as one pass).
+    d = k + 2
+    step = max(1024, _ELIMINATION_BYTES // (8 * (d * (d + 1) // 2 + d)))
+    if step >= len(idx):
+        vxx, vyy, vxy, ok = _eliminate(pick, d, len(idx))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r = vxy / np.sqrt(vxx * vyy)
+    else:
+        r = np.empty(len(idx))
+        ok = np.empty(len(idx), dtype=bool)
+        for start in range(0, len(idx), step):
+            part = idx[start:start + step]
+            vxx, vyy, vxy, ok[start:start + step] = _eliminate(_entries(corr, part), d,
+                                                               len(part))
+            with np.errstate(invalid="ignore", divide="ignore"):
+                r[start:start + step] = vxy / np.sqrt(vxx * vyy)
     if not ok.all():  # a (nearly) singular conditioning block: the pseudo-inverse decides
         bad = idx[~ok]
         prec = _stacked_inverse(corr[bad[:, :, None], bad[:, None, :]])

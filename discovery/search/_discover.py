@@ -252,6 +252,7 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     locked = [(index[a], index[b]) for a, b in knowledge.locked + knowledge.locked_directions]
     forbidden = [(index[a], index[b]) for a, b in knowledge.forbidden]
     hits0, misses0 = cache.hits, cache.misses
+    not_kept0 = getattr(cache, "not_kept", 0)
     rank = list(range(len(names)))  # indices follow name order (a list: fast lookups)
 
     def why_forbidden(a, b):
@@ -326,6 +327,11 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
                 why_forbidden=why_forbidden, separating_sets_of=separating_sets_of,
                 unseparated=skeleton.unseparated_forbidden)
     t2 = time.perf_counter()
+    not_kept = getattr(cache, "not_kept", 0) - not_kept0
+    if not_kept:
+        notes.append(f"the p-value store was full ({cache.nbytes / 2**30:,.2f} GiB): "
+                     f"{not_kept:,} p-value(s) of this search were not kept, and a re-run "
+                     "(another α, knowledge) computes them again")
     for x, y, s, p in skeleton.locked_conflicts:
         orientation.conflicts.insert(0, (
             f"{names[x]} — {names[y]} is locked, but the data find them independent given "
@@ -359,7 +365,7 @@ def _possible_d_sep_phase(skeleton, names, pvalues, settings, depth, locked, pro
     """FCI's second adjacency phase (:mod:`._fci`): edges are removed from ``skeleton`` in
     place, their separating sets recorded and the tests added to its log."""
     if budget == "auto":
-        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * sum(len(p) for _, p in skeleton.log))
+        budget = max(PDS_AUTO_MINIMUM, PDS_AUTO_FACTOR * skeleton.log.tests)
     # The colliders that shape the possible-d-separating sets follow the search's collider
     # rule: with the conservative or majority rule the sets, and so the final skeleton, do
     # not depend on which separating set the adjacency search happened to find first
@@ -587,7 +593,7 @@ def _software() -> dict:
 def _restore_signs(skeleton) -> None:
     """Undo the sign flip of the equivalence rule in the skeleton's record (p-values back to
     the equivalence p-values)."""
-    skeleton.log[:] = [(idx, -p) for idx, p in skeleton.log]
+    skeleton.log.transform_pvalues(np.negative)
     sepsets = skeleton.sepsets
     sepsets._blocks = [(rows, -p) for rows, p in sepsets._blocks]
     skeleton.locked_conflicts[:] = [(x, y, s, -p) for x, y, s, p in skeleton.locked_conflicts]

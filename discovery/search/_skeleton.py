@@ -37,6 +37,7 @@ from typing import Callable
 import numpy as np
 from scipy.special import comb
 
+from .._evidence import EvidenceLog, evidence_memory_budget, free_disk_space
 from ..exceptions import SearchCancelled
 from ..resources import available_memory
 
@@ -130,7 +131,8 @@ class SkeletonOutcome:
     adjacent: list[set[int]]
     sepsets: SeparatingSets
     # every test run, in the order run: blocks of index rows [x, y, s1..sk] and p-values
-    log: list[tuple[np.ndarray, np.ndarray]] = field(default_factory=list)
+    # (past a memory budget, in a temporary file)
+    log: EvidenceLog = field(default_factory=EvidenceLog)
     locked_conflicts: list[tuple[int, int, tuple[int, ...], float]] = field(default_factory=list)
     unseparated_forbidden: list[tuple[int, int]] = field(default_factory=list)
     depth_reached: int = 0
@@ -302,7 +304,7 @@ def _side_orders(pairs: np.ndarray, frozen: np.ndarray, weakness: np.ndarray):
 # have stopped earlier.
 _ONE_BATCH = 4096
 _MAX_BATCH = 1_000_000  # at most about this many rows in one round
-_MEMORY_SHARE = 0.6  # a level whose evidence could need more of the free memory is not run
+_DISK_SHARE = 0.6  # a level whose evidence could need more of the free disk is not run
 _SATURATE = 1 << 62  # set counts are capped here: no round ever reaches that far
 
 
@@ -397,7 +399,8 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
                      locked=(), forbidden=(), progress=None, cancelled=None,
                      association: np.ndarray | None = None,
                      batch_limit: int | None = None,
-                     may_separate: Callable | None = None) -> SkeletonOutcome:
+                     may_separate: Callable | None = None,
+                     evidence_budget: int | None = None) -> SkeletonOutcome:
     """Run the order-independent adjacency search.
 
     Parameters
@@ -430,6 +433,10 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
         the most promising conditioning variables first; by default ``1 - p`` of the
         unconditional tests. It changes only which separating set is found first (any one is
         valid) and how many tests that takes.
+    evidence_budget : int, optional
+        Bytes of evidence (the log of every test) kept in memory; the rest goes to a
+        temporary file (see :mod:`discovery._evidence`). Default: a quarter of the memory
+        available, at most 1 GiB.
 
     Notes
     -----
@@ -443,7 +450,10 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
     adj = ~np.eye(n_vars, dtype=bool)
     for a, b in forbidden:
         adj[a, b] = adj[b, a] = False
-    out = SkeletonOutcome(adjacent=[], sepsets=SeparatingSets(n_vars))
+    if evidence_budget is None:
+        evidence_budget = evidence_memory_budget(available_memory())
+    out = SkeletonOutcome(adjacent=[], sepsets=SeparatingSets(n_vars),
+                          log=EvidenceLog(budget=evidence_budget))
     locked_keys = np.array(sorted(a * n_vars + b for a, b in locked), dtype=np.int64)
     ghosts = set(forbidden)  # forbidden pairs still looking for a separating set
     conflicted = set()  # locked pairs the data already separated once
@@ -470,14 +480,18 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             break
         total = int(sizes.sum())
         need = total * (np.dtype(log_dtype).itemsize * (level + 2) + 8)
-        if level > 1 and need > _MEMORY_SHARE * available_memory():
-            # the evidence keeps every test: a level that could outgrow the memory is not
-            # started (the search stops deepening instead of failing half-way)
+        if level > 1 and need > max(evidence_budget - out.log.nbytes_in_memory, 0) + \
+                _DISK_SHARE * free_disk_space():
+            # the evidence keeps every test (in memory up to its budget, then in a temporary
+            # file): a level whose evidence could outgrow both is not started (the search
+            # stops deepening instead of failing half-way)
             out.memory_limit = (
-                f"depth limited to {level - 1} by memory: level {level} could run up to "
-                f"{total:,} tests, whose evidence needs up to {need / 2**30:,.1f} GiB, more "
-                f"than {_MEMORY_SHARE:.0%} of the memory available; pairs still adjacent may "
-                "be separable by larger sets (set a depth, or search fewer variables)")
+                f"depth limited to {level - 1} by memory and disk space: level {level} could "
+                f"run up to {total:,} tests, whose evidence needs up to "
+                f"{need / 2**30:,.1f} GiB, more than the memory set aside for it and "
+                f"{_DISK_SHARE:.0%} of the free disk space for temporary files; pairs still "
+                "adjacent may be separable by larger sets (set a depth, search fewer "
+                "variables, or point TMPDIR to a larger disk)")
             break
         level_started = time.perf_counter()
         done = 0
