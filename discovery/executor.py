@@ -25,8 +25,9 @@ Why parallel work used to be slower, and what this module does about it
       few tens of milliseconds each, at least one per worker;
     * **small batches stay in-process**: when a batch's estimated cost is below
       ``min_seconds`` (default 30 ms) shipping it cannot pay, and it runs where it is;
-    * **spreading must pay**: each spread batch measures how much CPU the workers got
-      together (their CPU time over the batch's wall time); below :data:`SPREAD_CORES`
+    * **spreading must pay**: each spread batch measures how many cores the computing
+      processes got together (each piece's CPU time over its own wall time, times the
+      processes); below :data:`SPREAD_CORES`
       (other work keeps the cores busy), the extra work of spreading cannot pay, and
       batches stay in-process, every fourth one being spread anyway to notice free cores;
     * **BLAS is single-threaded in workers**, which already share the cores.
@@ -322,13 +323,14 @@ class _Spreading(Executor):
         cuts = _cuts(len(rest), count, None if groups is None
                      else np.asarray(groups)[len(head):])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
-        self._prepare()  # start workers outside the timing below
-        started = time.perf_counter()
+        self._prepare()  # start workers before the first piece goes out
         outs, (seconds, cpu) = self._dispatch(fn, shared, parts, "rows", check, None)
-        wall = time.perf_counter() - started
         rate.learn("work", seconds, len(rest))
-        if wall > 0.02:  # the cores the workers got together, while they computed
-            cores = cpu / wall
+        if seconds > 0.02:
+            # The cores the computing processes got together: each piece's CPU over its own
+            # wall time says whether its process had a core while it ran (start-up, pipes
+            # and the wait for the last piece are not the machine's load).
+            cores = min(self.jobs, len(parts)) * cpu / seconds
             self._cores = cores if self._cores is None else 0.5 * (self._cores + cores)
         return np.concatenate(head + [np.asarray(o) for o in outs])
 
