@@ -544,6 +544,9 @@ class ProcessExecutor(_Spreading):
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
         if len(self._workers) < self.jobs - 1:
+            # find the BLAS libraries here, once: forked workers inherit what was found
+            # (finding them reads the process's memory map and library files: ~0.1 s)
+            blas_threads(1)
             method = _start_method()
             context = multiprocessing.get_context(method)
             if method == "forkserver":  # workers fork from a server that imported these once
