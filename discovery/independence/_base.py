@@ -236,77 +236,155 @@ def _pvalues_of_chunk(args):
 class _SizeTable:
     """p-values of one test and one set size, as a few sorted runs of packed keys.
 
-    A row ``[x, y, s1..sk]`` is packed into one 64-bit integer when it fits (``bits`` per
-    variable), else into a fixed-width byte string of 16- or 32-bit indices. Keys and
-    p-values live in numpy arrays, sorted run by run (a log-structured merge: a new batch is
-    a run of its own, and runs of similar size are merged), so a lookup is a binary search per
-    run and a stored test costs its key and one float: about 16 bytes, against about 200 in
-    a dictionary of Python objects, which is what lets a search of tens of millions of tests
-    fit in memory.
+    A row ``[x, y, s1..sk]`` is packed into unsigned 64-bit words, ``bits`` per variable and
+    as many variables as fit in a word (seven of 300 variables). A row that fits one word is
+    its own key; a wider row is kept as its words and sorted by a 64-bit mix of them, and a
+    lookup compares the words themselves, so two rows that mix alike are still told apart
+    (the key only orders the run; the words decide). Keys, words and p-values live in numpy
+    arrays, sorted run by run (a log-structured merge: a new batch is a run of its own, and
+    runs of similar size are merged), so a lookup is a binary search of 64-bit integers per
+    run, and a stored test costs 16 bytes (a wide row 8 more per word and 8 for its key),
+    against about 200 in a dictionary of Python objects, which is what lets a search of tens
+    of millions of tests fit in memory.
     """
 
     def __init__(self, n_vars: int, width: int):
         self.bits = max(1, int(n_vars).bit_length())
-        self.packable = self.bits * width <= 62
+        self.per_word = 64 // self.bits
+        self.words = -(-width // self.per_word)
         self.width = width
-        self.index_dtype = np.uint16 if n_vars < 2**16 else np.uint32
-        self.runs: list[tuple[np.ndarray, np.ndarray]] = []
+        # each run: (sorted 64-bit keys, the rows' words in the same order or None, p-values)
+        self.runs: list[tuple[np.ndarray, np.ndarray | None, np.ndarray]] = []
         self.size = 0
 
-    def keys_of(self, idx: np.ndarray) -> np.ndarray:
-        if self.packable:
-            key = np.zeros(len(idx), dtype=np.int64)
-            for k in range(idx.shape[1]):
-                key |= idx[:, k].astype(np.int64) << (self.bits * k)
-            return key
-        packed = np.ascontiguousarray(idx, dtype=self.index_dtype)
-        return packed.view(np.dtype((np.void, packed.itemsize * self.width))).ravel()
+    def keys_of(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+        """(64-bit sort keys, the rows' words or None when one word is the key)."""
+        words = np.zeros((len(idx), self.words), dtype=np.uint64)
+        for k in range(idx.shape[1]):
+            shift = np.uint64(self.bits * (k % self.per_word))
+            words[:, k // self.per_word] |= idx[:, k].astype(np.uint64) << shift
+        if self.words == 1:
+            return words[:, 0], None
+        return _mixed(words), words
 
-    def lookup(self, keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(p-values, mask of known keys); unknown keys get NaN. The largest run is searched
-        first and each later run only for the keys still unknown."""
+    def sorted_batch(self, idx: np.ndarray):
+        """The batch's keys in ascending order: ``(order, keys, words)`` with ``keys =
+        keys_of(idx)[0][order]``. Sorted queries walk each run from left to right (a binary
+        search that starts where the last one ended stays in cached memory), several times
+        faster than the same queries in batch order, and the batch's unknown keys come out
+        already sorted, a run ready to store."""
+        keys, words = self.keys_of(idx)
+        order = np.argsort(keys)
+        return order, keys[order], None if words is None else words[order]
+
+    def lookup(self, keys: np.ndarray, words: np.ndarray | None = None
+               ) -> tuple[np.ndarray, np.ndarray]:
+        """(p-values, mask of known keys) of sorted keys; unknown keys get NaN. The largest
+        run is searched first and each later run only for the keys still unknown."""
         values = np.full(len(keys), np.nan)
         known = np.zeros(len(keys), dtype=bool)
         todo = np.arange(len(keys))
-        for run_keys, run_values in sorted(self.runs, key=lambda r: -len(r[0])):
+        for run in sorted(self.runs, key=lambda r: -len(r[0])):
             if not len(todo):
                 break
-            want = keys[todo]
-            at = np.minimum(np.searchsorted(run_keys, want), len(run_keys) - 1)
-            hit = run_keys[at] == want
-            values[todo[hit]] = run_values[at[hit]]
+            hit, at = _find(run, keys[todo], None if words is None else words[todo])
+            values[todo[hit]] = run[2][at[hit]]
             known[todo[hit]] = True
             todo = todo[~hit]
         return values, known
 
-    def store(self, keys: np.ndarray, values: np.ndarray) -> None:
-        self.runs.append(_sorted_run(keys, np.asarray(values, dtype=float)))
+    def store(self, keys: np.ndarray, words: np.ndarray | None, values: np.ndarray,
+              first: np.ndarray) -> None:
+        """Add sorted keys (with their words) and p-values; ``first`` ranks copies of one row
+        in a batch (the lowest is kept)."""
+        self.runs.append(_unique_run(keys, words, np.asarray(values, dtype=float), first))
         while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
-            (k1, v1), (k2, v2) = self.runs[-2], self.runs.pop()
-            self.runs[-1] = _merged_runs(k1, v1, k2, v2)
-        self.size = sum(len(k) for k, _ in self.runs)
+            second = self.runs.pop()
+            self.runs[-1] = _merged_runs(self.runs[-1], second)
+        self.size = sum(len(r[0]) for r in self.runs)
 
     def __len__(self):
         return self.size
 
 
-def _merged_runs(k1, v1, k2, v2) -> tuple[np.ndarray, np.ndarray]:
-    """Two sorted runs as one, in linear time (keys of the second already in the first keep
-    the first's value)."""
-    at = np.searchsorted(k1, k2)
-    fresh = (at >= len(k1)) | (k1[np.minimum(at, len(k1) - 1)] != k2)
-    return (np.insert(k1, at[fresh], k2[fresh]), np.insert(v1, at[fresh], v2[fresh]))
+def _mixed(words: np.ndarray) -> np.ndarray:
+    """A 64-bit mix of each row of words (the finaliser of Steele, Lea & Flood's SplitMix64,
+    2014, applied word after word): it only orders a run, so equal mixes of different rows
+    cost a comparison, never a wrong answer."""
+    h = np.zeros(len(words), dtype=np.uint64)
+    for j in range(words.shape[1]):
+        h ^= words[:, j]
+        h ^= h >> np.uint64(30)
+        h *= np.uint64(0xBF58476D1CE4E5B9)
+        h ^= h >> np.uint64(27)
+        h *= np.uint64(0x94D049BB133111EB)
+        h ^= h >> np.uint64(31)
+    return h
 
 
-def _sorted_run(keys: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Keys sorted, each once (its first value kept), with their values."""
-    order = np.argsort(keys, kind="stable")
+def _find(run, keys: np.ndarray, words: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """(found mask, position in the run) of each key (and row of words) in a sorted run.
+    Wide rows are compared word by word, walking over the run's rows whose keys are equal."""
+    run_keys, run_words, _ = run
+    at = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
+    same = run_keys[at] == keys
+    if run_words is None:
+        return same, at
+    hit = same.copy()
+    hit[same] = (run_words[at[same]] == words[same]).all(axis=1)
+    walk = np.flatnonzero(same & ~hit)  # equal keys, other rows: try the next equal keys
+    while len(walk):
+        at[walk] += 1
+        walk = walk[at[walk] < len(run_keys)]
+        walk = walk[run_keys[at[walk]] == keys[walk]]
+        match = (run_words[at[walk]] == words[walk]).all(axis=1)
+        hit[walk[match]] = True
+        walk = walk[~match]
+    return hit, at
+
+
+def _merged_runs(first, second):
+    """Two sorted runs as one, in linear time: each row of the second goes to its searched
+    position shifted by the rows inserted before it, the first's rows fill the gaps (rows of
+    the second already in the first keep the first's value)."""
+    found, _ = _find(first, second[0], second[1])
+    k2, w2, v2 = (None if part is None else part[~found] for part in second)
+    k1, w1, v1 = first
+    size = len(k1) + len(k2)
+    at = np.searchsorted(k1, k2) + np.arange(len(k2))
+    from_second = np.zeros(size, dtype=bool)
+    from_second[at] = True
+    merged = []
+    for one, two in ((k1, k2), (w1, w2), (v1, v2)):
+        if one is None:
+            merged.append(None)
+            continue
+        out = np.empty((size,) + one.shape[1:], dtype=one.dtype)
+        out[at] = two
+        out[~from_second] = one
+        merged.append(out)
+    return tuple(merged)
+
+
+def _unique_run(keys: np.ndarray, words: np.ndarray | None, values: np.ndarray,
+                first: np.ndarray):
+    """Sorted keys as a run, each row once (the copy with the lowest ``first`` kept)."""
+    if len(keys) < 2:
+        return keys, words, values
+    tie = keys[1:] == keys[:-1]
+    if not tie.any():
+        return keys, words, values
+    # copies of a row (or, for wide rows, equal keys of different rows: rare): order each
+    # group of equal keys by the words, then by ``first``, so that copies sit together
+    order = np.lexsort((first, *([] if words is None else words.T[::-1]), keys))
     keys, values = keys[order], values[order]
-    if len(keys) > 1:
-        first = np.ones(len(keys), dtype=bool)
-        first[1:] = keys[1:] != keys[:-1]
-        keys, values = keys[first], values[first]
-    return keys, values
+    tie = keys[1:] == keys[:-1]
+    if words is not None:
+        words = words[order]
+        tie &= (words[1:] == words[:-1]).all(axis=1)
+    keep = np.ones(len(keys), dtype=bool)
+    keep[1:] = ~tie
+    return keys[keep], None if words is None else words[keep], values[keep]
 
 
 class PValueCache:
@@ -344,14 +422,19 @@ class PValueCache:
             table = self._store.get(key)
             if table is None:
                 table = self._store[key] = _SizeTable(len(test.variables), idx.shape[1])
-            keys = table.keys_of(idx)
-            values, known = table.lookup(keys)
-        todo = np.flatnonzero(~known)
+            order, keys, words = table.sorted_batch(idx)
+            found, known = table.lookup(keys, words)
+        values = np.empty(len(idx))
+        values[order] = found
+        unknown = np.flatnonzero(~known)  # positions in key order
+        todo = np.sort(order[unknown])  # the same rows in batch order, computed in that order
         if len(todo):
-            fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
-            values[todo] = fresh
+            values[todo] = np.asarray(test.pvalues_array(idx[todo], executor=executor),
+                                      dtype=float)
+            rows = order[unknown]
             with self._lock:
-                table.store(keys if len(todo) == len(keys) else keys[todo], fresh)
+                table.store(keys[unknown], None if words is None else words[unknown],
+                            values[rows], rows)
         with self._lock:
             self.misses += len(todo)
             self.hits += len(idx) - len(todo)
