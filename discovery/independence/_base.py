@@ -255,35 +255,36 @@ class _SizeTable:
         self.width = width
         # each run: (sorted 64-bit keys, the rows' words in the same order or None, p-values)
         self.runs: list[tuple[np.ndarray, np.ndarray | None, np.ndarray]] = []
-        self.size = 0
+        # stored but not sorted yet: sorted into a run by the next lookup (rows a later
+        # search never asks for, such as those of a sweep's last rung, are never sorted)
+        self.unsorted: list[tuple[np.ndarray, np.ndarray | None, np.ndarray]] = []
 
     def keys_of(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
-        """(64-bit sort keys, the rows' words or None when one word is the key)."""
+        """(64-bit keys, the rows' words or None when one word is the key), in batch order.
+        Only the table's shape is read: safe without the cache's lock."""
         words = np.zeros((len(idx), self.words), dtype=np.uint64)
         for k in range(idx.shape[1]):
-            shift = np.uint64(self.bits * (k % self.per_word))
-            words[:, k // self.per_word] |= idx[:, k].astype(np.uint64) << shift
+            column = idx[:, k].astype(np.uint64)
+            column <<= np.uint64(self.bits * (k % self.per_word))
+            words[:, k // self.per_word] |= column
         if self.words == 1:
             return words[:, 0], None
         return _mixed(words), words
 
-    def sorted_batch(self, idx: np.ndarray):
-        """The batch's keys in ascending order: ``(order, keys, words)`` with ``keys =
-        keys_of(idx)[0][order]``. Sorted queries walk each run from left to right (a binary
-        search that starts where the last one ended stays in cached memory), several times
-        faster than the same queries in batch order, and the batch's unknown keys come out
-        already sorted, a run ready to store."""
-        keys, words = self.keys_of(idx)
-        order = np.argsort(keys)
-        return order, keys[order], None if words is None else words[order]
-
     def lookup(self, keys: np.ndarray, words: np.ndarray | None = None
                ) -> tuple[np.ndarray, np.ndarray]:
-        """(p-values, mask of known keys) of sorted keys; unknown keys get NaN. The largest
-        run is searched first and each later run only for the keys still unknown."""
+        """(p-values, mask of known keys), in the order given; unknown keys get NaN.
+
+        The keys are searched in ascending order: a binary search that starts where the last
+        one ended stays in cached memory, two to four times faster than the same searches in
+        batch order even after paying for the sort. The largest run is searched first and
+        each later run only for the keys still unknown."""
         values = np.full(len(keys), np.nan)
         known = np.zeros(len(keys), dtype=bool)
-        todo = np.arange(len(keys))
+        self.settle()
+        if not self.runs or not len(keys):
+            return values, known
+        todo = np.argsort(keys)
         for run in sorted(self.runs, key=lambda r: -len(r[0])):
             if not len(todo):
                 break
@@ -293,18 +294,30 @@ class _SizeTable:
             todo = todo[~hit]
         return values, known
 
-    def store(self, keys: np.ndarray, words: np.ndarray | None, values: np.ndarray,
-              first: np.ndarray) -> None:
-        """Add sorted keys (with their words) and p-values; ``first`` ranks copies of one row
-        in a batch (the lowest is kept)."""
-        self.runs.append(_unique_run(keys, words, np.asarray(values, dtype=float), first))
+    def store(self, keys: np.ndarray, words: np.ndarray | None, values: np.ndarray) -> None:
+        """Add keys (with their words) and p-values in any order; of copies of one row the
+        first is kept, and rows already stored keep their value. Sorted when first needed."""
+        self.unsorted.append((keys, words, np.asarray(values, dtype=float)))
+
+    def settle(self) -> None:
+        """Sort the rows stored since the last lookup into a run; merge runs of similar size."""
+        if not self.unsorted:
+            return
+        parts, self.unsorted = self.unsorted, []
+        keys = np.concatenate([k for k, _, _ in parts]) if len(parts) > 1 else parts[0][0]
+        words = None if parts[0][1] is None else (
+            np.concatenate([w for _, w, _ in parts]) if len(parts) > 1 else parts[0][1])
+        values = np.concatenate([v for _, _, v in parts]) if len(parts) > 1 else parts[0][2]
+        order = np.argsort(keys)
+        self.runs.append(_unique_run(keys[order], None if words is None else words[order],
+                                     values[order], order))
         while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
             second = self.runs.pop()
             self.runs[-1] = _merged_runs(self.runs[-1], second)
-        self.size = sum(len(r[0]) for r in self.runs)
 
     def __len__(self):
-        return self.size
+        self.settle()
+        return sum(len(r[0]) for r in self.runs)
 
 
 def _mixed(words: np.ndarray) -> np.ndarray:
@@ -323,16 +336,19 @@ def _mixed(words: np.ndarray) -> np.ndarray:
 
 
 def _find(run, keys: np.ndarray, words: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
-    """(found mask, position in the run) of each key (and row of words) in a sorted run.
-    Wide rows are compared word by word, walking over the run's rows whose keys are equal."""
+    """(found mask, position) of each key (and row of words) in a sorted run: a found row's
+    position in the run, else where it would be inserted to keep the run sorted. Wide rows
+    are compared word by word, walking over the run's rows whose keys are equal."""
     run_keys, run_words, _ = run
-    at = np.minimum(np.searchsorted(run_keys, keys), len(run_keys) - 1)
-    same = run_keys[at] == keys
+    at = np.searchsorted(run_keys, keys)
+    inside = np.flatnonzero(at < len(run_keys))
+    hit = np.zeros(len(keys), dtype=bool)
+    hit[inside] = run_keys[at[inside]] == keys[inside]
     if run_words is None:
-        return same, at
-    hit = same.copy()
+        return hit, at
+    same = np.flatnonzero(hit)
     hit[same] = (run_words[at[same]] == words[same]).all(axis=1)
-    walk = np.flatnonzero(same & ~hit)  # equal keys, other rows: try the next equal keys
+    walk = same[~hit[same]]  # equal keys, other rows: try the next equal keys
     while len(walk):
         at[walk] += 1
         walk = walk[at[walk] < len(run_keys)]
@@ -347,35 +363,34 @@ def _merged_runs(first, second):
     """Two sorted runs as one, in linear time: each row of the second goes to its searched
     position shifted by the rows inserted before it, the first's rows fill the gaps (rows of
     the second already in the first keep the first's value)."""
-    found, _ = _find(first, second[0], second[1])
-    k2, w2, v2 = (None if part is None else part[~found] for part in second)
-    k1, w1, v1 = first
-    size = len(k1) + len(k2)
-    at = np.searchsorted(k1, k2) + np.arange(len(k2))
-    from_second = np.zeros(size, dtype=bool)
-    from_second[at] = True
+    found, at = _find(first, second[0], second[1])
+    fresh = np.flatnonzero(~found)
+    size = len(first[0]) + len(fresh)
+    at = at[fresh] + np.arange(len(fresh))
+    from_first = np.ones(size, dtype=bool)
+    from_first[at] = False
     merged = []
-    for one, two in ((k1, k2), (w1, w2), (v1, v2)):
+    for one, two in zip(first, second):
         if one is None:
             merged.append(None)
             continue
         out = np.empty((size,) + one.shape[1:], dtype=one.dtype)
-        out[at] = two
-        out[~from_second] = one
+        out[at] = two[fresh]
+        out[from_first] = one
         merged.append(out)
     return tuple(merged)
 
 
 def _unique_run(keys: np.ndarray, words: np.ndarray | None, values: np.ndarray,
                 first: np.ndarray):
-    """Sorted keys as a run, each row once (the copy with the lowest ``first`` kept)."""
+    """Sorted keys as a run, each row once: of copies, the one lowest in ``first``."""
     if len(keys) < 2:
         return keys, words, values
     tie = keys[1:] == keys[:-1]
     if not tie.any():
         return keys, words, values
-    # copies of a row (or, for wide rows, equal keys of different rows: rare): order each
-    # group of equal keys by the words, then by ``first``, so that copies sit together
+    # copies of a row, or equal keys of different wide rows (rare): order each group of
+    # equal keys by the words, then by ``first``, so that copies sit together, the first first
     order = np.lexsort((first, *([] if words is None else words.T[::-1]), keys))
     keys, values = keys[order], values[order]
     tie = keys[1:] == keys[:-1]
@@ -414,6 +429,20 @@ class PValueCache:
     def pvalues_array(self, test: IndependenceTest, idx: np.ndarray, *,
                       executor=None) -> np.ndarray:
         """Return p-values for canonical index rows of one set size (see IndependenceTest)."""
+        return self._answer(test, idx, executor, None)
+
+    def deferred(self) -> "DeferredStore":
+        """A view of the cache for a caller that never asks for one test twice, such as the
+        adjacency search (each level tests each pair with each set at most once).
+
+        Lookups go to the cache as it stands; the p-values computed are kept aside and
+        stored when the view is closed (use it as a context manager), with one sort and one
+        merge per table instead of one per batch. Until then, other callers do not see them
+        and would compute them again (with the same result).
+        """
+        return DeferredStore(self)
+
+    def _answer(self, test, idx, executor, pending) -> np.ndarray:
         idx = np.asarray(idx, dtype=np.intp)
         if len(idx) == 0:
             return np.empty(0)
@@ -422,23 +451,33 @@ class PValueCache:
             table = self._store.get(key)
             if table is None:
                 table = self._store[key] = _SizeTable(len(test.variables), idx.shape[1])
-            order, keys, words = table.sorted_batch(idx)
-            found, known = table.lookup(keys, words)
-        values = np.empty(len(idx))
-        values[order] = found
-        unknown = np.flatnonzero(~known)  # positions in key order
-        todo = np.sort(order[unknown])  # the same rows in batch order, computed in that order
-        if len(todo):
-            values[todo] = np.asarray(test.pvalues_array(idx[todo], executor=executor),
-                                      dtype=float)
-            rows = order[unknown]
+        keys, words = table.keys_of(idx)
+        with self._lock:
+            values, known = table.lookup(keys, words)
+        todo = np.flatnonzero(~known)
+        if len(todo) == len(idx):  # nothing known (often: a new level of a search)
+            values = np.asarray(test.pvalues_array(idx, executor=executor), dtype=float)
+            fresh = values
+        elif len(todo):
+            fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
+            values[todo] = fresh
+            keys = keys[todo]
+            words = None if words is None else words[todo]
+        if len(todo) and pending is None:
             with self._lock:
-                table.store(keys[unknown], None if words is None else words[unknown],
-                            values[rows], rows)
+                table.store(keys, words, fresh)
+        elif len(todo):
+            pending.setdefault(id(table), (table, []))[1].append((keys, words, fresh))
         with self._lock:
             self.misses += len(todo)
             self.hits += len(idx) - len(todo)
         return values
+
+    def _store_pending(self, pending: dict) -> None:
+        with self._lock:
+            for table, parts in pending.values():
+                table.unsorted.extend(parts)
+        pending.clear()
 
     def __len__(self) -> int:
         with self._lock:
@@ -449,3 +488,27 @@ class PValueCache:
         with self._lock:
             self._store.clear()
             self.hits = self.misses = 0
+
+
+class DeferredStore:
+    """What :meth:`PValueCache.deferred` returns: answers like the cache, stores on close."""
+
+    def __init__(self, cache: PValueCache):
+        self.cache = cache
+        self._pending: dict = {}
+
+    def pvalues_array(self, test: IndependenceTest, idx: np.ndarray, *,
+                      executor=None) -> np.ndarray:
+        """p-values for canonical index rows of one set size, computing those not stored."""
+        return self.cache._answer(test, idx, executor, self._pending)
+
+    def close(self) -> None:
+        """Store the p-values computed through this view."""
+        self.cache._store_pending(self._pending)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+        return False
