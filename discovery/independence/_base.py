@@ -264,8 +264,10 @@ class _SizeTable:
         Only the table's shape is read: safe without the cache's lock."""
         words = np.zeros((len(idx), self.words), dtype=np.uint64)
         for k in range(idx.shape[1]):
+            # the first variable of a word in its highest bits: rows that come in row order
+            # (a level of pairs, say) come with their keys already sorted
             column = idx[:, k].astype(np.uint64)
-            column <<= np.uint64(self.bits * (k % self.per_word))
+            column <<= np.uint64(self.bits * (self.per_word - 1 - k % self.per_word))
             words[:, k // self.per_word] |= column
         if self.words == 1:
             return words[:, 0], None
@@ -284,7 +286,7 @@ class _SizeTable:
         self.settle()
         if not self.runs or not len(keys):
             return values, known
-        todo = np.argsort(keys)
+        todo = _ascending(keys)
         for run in sorted(self.runs, key=lambda r: -len(r[0])):
             if not len(todo):
                 break
@@ -308,7 +310,7 @@ class _SizeTable:
         words = None if parts[0][1] is None else (
             np.concatenate([w for _, w, _ in parts]) if len(parts) > 1 else parts[0][1])
         values = np.concatenate([v for _, _, v in parts]) if len(parts) > 1 else parts[0][2]
-        order = np.argsort(keys)
+        order = _ascending(keys)
         self.runs.append(_unique_run(keys[order], None if words is None else words[order],
                                      values[order], order))
         while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
@@ -318,6 +320,13 @@ class _SizeTable:
     def __len__(self):
         self.settle()
         return sum(len(r[0]) for r in self.runs)
+
+
+def _ascending(keys: np.ndarray) -> np.ndarray:
+    """The order that sorts ``keys``: checked first, since batches often come sorted."""
+    if len(keys) < 2 or bool((keys[1:] >= keys[:-1]).all()):
+        return np.arange(len(keys))
+    return np.argsort(keys)
 
 
 def _mixed(words: np.ndarray) -> np.ndarray:
