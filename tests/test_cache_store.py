@@ -86,3 +86,26 @@ def test_wide_rows_whose_keys_collide_are_told_apart(monkeypatch):
     assert np.array_equal(np.nan_to_num(again, nan=-1),
                           np.nan_to_num(test._batch_array(np.array(list(reference))[::-1])[1],
                                         nan=-1))
+
+
+def test_a_deferred_view_stores_what_it_computed_when_closed():
+    # common practice, no source: a write-behind view must answer like the cache, and lose
+    # nothing it computed, also when the caller stops with an error
+    rng = np.random.default_rng(11)
+    test, cache = CountingTest(300), PValueCache()
+    known = _rows(rng, 300, 4, 200)
+    first = cache.pvalues_array(test, known)
+    fresh = _rows(rng, 300, 4, 200)
+    fresh = fresh[~(fresh[:, None, :] == known[None, :, :]).all(axis=2).any(axis=1)]
+    with pytest.raises(RuntimeError):
+        with cache.deferred() as view:
+            got = view.pvalues_array(test, np.concatenate([known, fresh]))
+            assert np.array_equal(got[:len(known)], first, equal_nan=True)
+            assert cache.hits == len(known) and cache.misses == len(known) + len(fresh)
+            assert len(cache) == len(known)  # kept aside until the view closes
+            raise RuntimeError("stopped")
+    assert len(cache) == len(known) + len(fresh)
+    before = test.computed
+    again = cache.pvalues_array(test, fresh)
+    assert test.computed == before
+    assert np.array_equal(again, test._batch_array(fresh)[1], equal_nan=True)

@@ -417,7 +417,9 @@ class PValueCache:
     One cache can serve many searches: a knowledge edit, a new α or a re-run reuses every
     p-value already known for the same test settings. Lookups and inserts are vectorised
     (rows packed into 64-bit keys, kept sorted), so the cache costs little even for the
-    hundreds of thousands of tests of a large search.
+    hundreds of thousands of tests of a large search. A caller that never asks for one test
+    twice (the adjacency search) goes through :meth:`deferred`, which stores its p-values
+    when it ends; rows are sorted only when a lookup first needs them.
     """
 
     def __init__(self):
