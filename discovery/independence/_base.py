@@ -255,8 +255,8 @@ class _SizeTable:
         self.width = width
         # each run: (sorted 64-bit keys, the rows' words in the same order or None, p-values)
         self.runs: list[tuple[np.ndarray, np.ndarray | None, np.ndarray]] = []
-        # stored but not sorted yet: sorted into a run by the next lookup (rows a later
-        # search never asks for, such as those of a sweep's last rung, are never sorted)
+        # stored but not sorted yet: sorted into a run by the next lookup (rows no later
+        # search asks for, such as the deepest levels of a sweep's densest rung, never are)
         self.unsorted: list[tuple[np.ndarray, np.ndarray | None, np.ndarray]] = []
 
     def keys_of(self, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
@@ -447,9 +447,9 @@ class PValueCache:
         adjacency search (each level tests each pair with each set at most once).
 
         Lookups go to the cache as it stands; the p-values computed are kept aside and
-        stored when the view is closed (use it as a context manager), with one sort and one
-        merge per table instead of one per batch. Until then, other callers do not see them
-        and would compute them again (with the same result).
+        handed to the cache when the view is closed (use it as a context manager), to be
+        sorted once, when a lookup first needs them, instead of batch by batch. Until then,
+        other callers do not see them and would compute them again (with the same result).
         """
         return DeferredStore(self)
 
@@ -467,8 +467,8 @@ class PValueCache:
             values, known = table.lookup(keys, words)
         todo = np.flatnonzero(~known)
         if len(todo) == len(idx):  # nothing known (often: a new level of a search)
-            values = np.asarray(test.pvalues_array(idx, executor=executor), dtype=float)
-            fresh = values
+            fresh = np.asarray(test.pvalues_array(idx, executor=executor), dtype=float)
+            values = fresh.copy()  # the caller's to keep: the store keeps its own
         elif len(todo):
             fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
             values[todo] = fresh

@@ -222,9 +222,9 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     elif cache is None:
         cache = PValueCache()
 
-    # The adjacency search never asks for one test twice: what it computes is stored when it
-    # ends (one sort and merge per table of the cache, not one per batch); later phases,
-    # which may repeat its tests, go to the cache itself.
+    # The adjacency search never asks for one test twice: what it computes is handed to the
+    # cache when it ends (sorted once, when a later lookup needs it, not batch by batch);
+    # later phases, which may repeat its tests, go to the cache itself.
     deferred = cache.deferred() if hasattr(cache, "deferred") else None
 
     def pvalues(idx):
