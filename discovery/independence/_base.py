@@ -290,7 +290,8 @@ class _SizeTable:
         for run in sorted(self.runs, key=lambda r: -len(r[0])):
             if not len(todo):
                 break
-            hit, at = _find(run, keys[todo], None if words is None else words[todo])
+            hit, at = _find(run, keys[todo], None if words is None
+                            else words.take(todo, axis=0))
             values[todo[hit]] = run[2][at[hit]]
             known[todo[hit]] = True
             todo = todo[~hit]
@@ -311,8 +312,9 @@ class _SizeTable:
             np.concatenate([w for _, w, _ in parts]) if len(parts) > 1 else parts[0][1])
         values = np.concatenate([v for _, _, v in parts]) if len(parts) > 1 else parts[0][2]
         order = _ascending(keys)
-        self.runs.append(_unique_run(keys[order], None if words is None else words[order],
-                                     values[order], order))
+        # (np.take along the first axis: several times faster than fancy indexing of rows)
+        self.runs.append(_unique_run(keys[order], None if words is None
+                                     else words.take(order, axis=0), values[order], order))
         while len(self.runs) > 1 and len(self.runs[-2][0]) <= 2 * len(self.runs[-1][0]):
             second = self.runs.pop()
             self.runs[-1] = _merged_runs(self.runs[-1], second)
@@ -356,13 +358,13 @@ def _find(run, keys: np.ndarray, words: np.ndarray | None) -> tuple[np.ndarray, 
     if run_words is None:
         return hit, at
     same = np.flatnonzero(hit)
-    hit[same] = (run_words[at[same]] == words[same]).all(axis=1)
+    hit[same] = (run_words.take(at[same], axis=0) == words.take(same, axis=0)).all(axis=1)
     walk = same[~hit[same]]  # equal keys, other rows: try the next equal keys
     while len(walk):
         at[walk] += 1
         walk = walk[at[walk] < len(run_keys)]
         walk = walk[run_keys[at[walk]] == keys[walk]]
-        match = (run_words[at[walk]] == words[walk]).all(axis=1)
+        match = (run_words.take(at[walk], axis=0) == words.take(walk, axis=0)).all(axis=1)
         hit[walk[match]] = True
         walk = walk[~match]
     return hit, at
@@ -384,7 +386,7 @@ def _merged_runs(first, second):
             merged.append(None)
             continue
         out = np.empty((size,) + one.shape[1:], dtype=one.dtype)
-        out[at] = two[fresh]
+        out[at] = two.take(fresh, axis=0)
         out[from_first] = one
         merged.append(out)
     return tuple(merged)
@@ -404,7 +406,7 @@ def _unique_run(keys: np.ndarray, words: np.ndarray | None, values: np.ndarray,
     keys, values = keys[order], values[order]
     tie = keys[1:] == keys[:-1]
     if words is not None:
-        words = words[order]
+        words = words.take(order, axis=0)
         tie &= (words[1:] == words[:-1]).all(axis=1)
     keep = np.ones(len(keys), dtype=bool)
     keep[1:] = ~tie
@@ -470,10 +472,11 @@ class PValueCache:
             fresh = np.asarray(test.pvalues_array(idx, executor=executor), dtype=float)
             values = fresh.copy()  # the caller's to keep: the store keeps its own
         elif len(todo):
-            fresh = np.asarray(test.pvalues_array(idx[todo], executor=executor), dtype=float)
+            fresh = np.asarray(test.pvalues_array(idx.take(todo, axis=0), executor=executor),
+                               dtype=float)
             values[todo] = fresh
             keys = keys[todo]
-            words = None if words is None else words[todo]
+            words = None if words is None else words.take(todo, axis=0)
         if len(todo) and pending is None:
             with self._lock:
                 table.store(keys, words, fresh)
