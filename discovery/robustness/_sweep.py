@@ -214,6 +214,16 @@ def _ladder_order(result_edges_per_rung, ladder):
     return tuple(out)
 
 
+def _densest_first(rungs: int, parameter: str) -> list[int]:
+    """The order the rungs are run in: the rung that keeps the most edges (the largest α, or
+    the smallest margin δ) first. It runs the most tests, usually the most of any rung, and
+    finds the shared cache empty, so its tests are stored without being looked up; the
+    sparser rungs after it then find most of their tests there already. The results are the
+    same in any order: each rung is a complete search of its own."""
+    order = list(range(rungs))
+    return order[::-1] if parameter == "alpha" else order
+
+
 def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
           cancel=None, cache: PValueCache | None = None, **discover_options) -> SweepResult:
     """Run the search over a ladder of α (or of the equivalence margin δ).
@@ -229,7 +239,9 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
         ``unrelated="equivalence"`` at the α of ``discover_options`` (default 0.05).
     progress : callable, optional
         Called with ``{"phase": "sweep", "level": rung, "done": rungs done, "planned": rungs}``
-        after each rung (and with the search's own events during one).
+        after each rung (and with the search's own events during one). The rungs run from
+        the densest (largest α, smallest δ) to the sparsest; ``level`` is the rung's place
+        in the ladder.
     cancel : callable or threading.Event, optional
         Stops the sweep with ``SearchCancelled``.
     cache : PValueCache, optional
@@ -297,16 +309,16 @@ def sweep(data, alphas=None, *, margins=None, progress: Callable | None = None,
     cache = PValueCache() if cache is None else cache
     cancelled = None if cancel is None else (cancel.is_set if hasattr(cancel, "is_set")
                                             else cancel)
-    results, seconds = [], []
-    for rung, extra in enumerate(settings_per_rung):
+    results, seconds = [None] * len(ladder), [0.0] * len(ladder)
+    for done, rung in enumerate(_densest_first(len(ladder), parameter)):
         if cancelled is not None and cancelled():
             raise SearchCancelled("the sweep was stopped before it finished")
         started = time.perf_counter()
-        results.append(discover(data, cache=cache, progress=progress, cancel=cancel,
-                                **discover_options, **extra))
-        seconds.append(time.perf_counter() - started)
+        results[rung] = discover(data, cache=cache, progress=progress, cancel=cancel,
+                                 **discover_options, **settings_per_rung[rung])
+        seconds[rung] = time.perf_counter() - started
         if progress is not None:
-            progress({"phase": "sweep", "level": rung, "done": rung + 1,
+            progress({"phase": "sweep", "level": rung, "done": done + 1,
                       "planned": len(ladder)})
     edges = _ladder_order([r.edges for r in results], ladder)
     alphas_out = tuple(float(s["alpha"]) for s in settings_per_rung)

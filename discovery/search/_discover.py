@@ -238,8 +238,13 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     elif cache is None:
         cache = PValueCache()
 
+    # The adjacency search never asks for one test twice: what it computes is handed to the
+    # cache when it ends (sorted once, when a later lookup needs it, not batch by batch);
+    # later phases, which may repeat its tests, go to the cache itself.
+    deferred = cache.deferred() if hasattr(cache, "deferred") else None
+
     def pvalues(idx):
-        return cache.pvalues_array(test_obj, idx, executor=executor)
+        return (deferred or cache).pvalues_array(test_obj, idx, executor=executor)
 
     # The skeleton separates a pair when p > alpha. Equivalence p-values separate when
     # p <= alpha: the skeleton sees -p against -alpha (the same order, reversed, exactly),
@@ -264,15 +269,21 @@ def discover(data=None, *, test="fisher-z", alpha: float = 0.05, max_depth: int 
     # A vectorised test's batches are elementwise work on small arrays: BLAS threads gain
     # nothing there, and threads left spinning after the correlation matrix compete with it.
     with blas_threads(1 if test_obj.vectorised else None):
-        skeleton = adjacency_search(len(names), pvalues, alpha=sign * settings.alpha,
-                                    max_depth=depth,
-                                    locked=locked, forbidden=forbidden, progress=progress,
-                                    cancelled=cancelled, association=test_obj.association(),
-                                    batch_limit=None if test_obj.vectorised
-                                    else 64 * max(1, getattr(executor, "jobs", 1)),
-                                    may_separate=None if equivalence
-                                    else lambda pairs: test_obj.may_separate(
-                                        pairs, settings.alpha))
+        try:
+            skeleton = adjacency_search(len(names), pvalues, alpha=sign * settings.alpha,
+                                        max_depth=depth,
+                                        locked=locked, forbidden=forbidden,
+                                        progress=progress, cancelled=cancelled,
+                                        association=test_obj.association(),
+                                        batch_limit=None if test_obj.vectorised
+                                        else 64 * max(1, getattr(executor, "jobs", 1)),
+                                        may_separate=None if equivalence
+                                        else lambda pairs: test_obj.may_separate(
+                                            pairs, settings.alpha))
+        finally:
+            if deferred is not None:
+                deferred.close()  # a stopped search keeps what it computed, as before
+                deferred = None
         if equivalence:
             _restore_signs(skeleton)
         t1 = t_pds = time.perf_counter()

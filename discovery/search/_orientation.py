@@ -36,7 +36,9 @@ from dataclasses import dataclass, field
 from itertools import combinations
 from typing import Callable, Sequence
 
-import networkx as nx
+import numpy as np
+from scipy.sparse import csr_matrix
+from scipy.sparse.csgraph import connected_components
 
 __all__ = ["OrientationOutcome", "orient"]
 
@@ -205,14 +207,19 @@ def _arrows_on_cycles(heads, added) -> list[tuple[tuple[int, int], list[int]]]:
     them go, whatever order they were found in, so the answer does not depend on visiting
     order.
     """
-    graph = nx.DiGraph((u, v) for u, v in heads if (v, u) not in heads)
-    component = {}
-    for members in nx.strongly_connected_components(graph):
-        if len(members) > 1:
-            for v in members:
-                component[v] = members
-    return [((u, v), sorted(component[u])) for u, v in added
-            if (v, u) not in heads and u in component and v in component[u]]
+    added = [(u, v) for u, v in added if (v, u) not in heads]
+    if not added:
+        return []
+    arrows = np.array([(u, v) for u, v in heads if (v, u) not in heads], dtype=np.intp)
+    size = int(arrows.max()) + 1
+    graph = csr_matrix((np.ones(len(arrows), dtype=np.int8), (arrows[:, 0], arrows[:, 1])),
+                       shape=(size, size))
+    # strongly connected components (scipy's csgraph): an arrow lies on a directed cycle
+    # exactly when both its ends are in one component of more than one variable
+    _, label = connected_components(graph, directed=True, connection="strong")
+    members = np.bincount(label)
+    return [((u, v), np.flatnonzero(label == label[u]).tolist()) for u, v in added
+            if label[u] == label[v] and members[label[u]] > 1]
 
 
 def _cycle_text(members, names, key) -> str:

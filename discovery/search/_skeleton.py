@@ -572,7 +572,7 @@ def adjacency_search(n_vars: int, pvalues: Callable, *, alpha: float, max_depth=
             """:func:`run_rounds` over candidate rows given as flat arrays with their ranks."""
             def rows(active, lo, hi):
                 take = (all_rank >= lo) & (all_rank < hi) & active[all_owner]
-                return all_idx[take], all_owner[take]
+                return np.compress(take, all_idx, axis=0), all_owner[take]
             run_rounds(rows, lambda active, lo: int(np.count_nonzero(
                 (all_rank >= lo) & active[all_owner])), n_owners, start)
 
