@@ -24,7 +24,7 @@ Why parallel work used to be slower, and what this module does about it
       in-process, then the workers' own timings update a running estimate; chunks aim at a
       few tens of milliseconds each, at least one per worker;
     * **small batches stay in-process**: when a batch's estimated cost is below
-      ``min_seconds`` (default 30 ms) shipping it cannot pay, and it runs where it is;
+      ``min_seconds`` (default 0.1 s) shipping it cannot pay, and it runs where it is;
     * **spreading must pay**: each spread batch measures how many cores the computing
       processes got together (each piece's CPU time over its own wall time, times the
       processes); below :data:`SPREAD_CORES`
@@ -75,7 +75,7 @@ __all__ = ["Executor", "InProcessExecutor", "ProcessExecutor", "DaskExecutor", "
            "make_executor"]
 
 #: Batches whose estimated in-process cost is below this many seconds stay in-process.
-MIN_SECONDS = 0.03
+MIN_SECONDS = 0.1
 #: Seconds of work a chunk aims at (more chunks than workers keep the workers evenly busy).
 CHUNK_SECONDS = 0.1
 #: Spread batches only while the workers together get at least this many cores of CPU.
@@ -587,7 +587,9 @@ class ProcessExecutor(_Spreading):
                 for w in workers:
                     # two pieces in flight: a worker never waits for the caller to read its
                     # last answer before it can start the next piece
-                    while todo and (not w.tasks or (len(w.tasks) < _IN_FLIGHT
+                    # (a second piece only while more remain, so that the caller never
+                    # waits at the end of a batch for a piece it could have taken)
+                    while todo and (not w.tasks or (len(w.tasks) < _IN_FLIGHT and len(todo) > 2
                                                      and _fits_pipe(parts[todo[0]], mode))):
                         i = todo.popleft()
                         w.tasks.append(i)
