@@ -223,8 +223,24 @@ def main() -> int:
     w.canvas.find_box.hide()
     w.canvas.clear_focus()
     report_shots(app, w)
+    hidden_causes_shot(app, w)
     w.close()
     return 0
+
+
+def hidden_causes_shot(app, w):
+    """The invented office example searched with hidden causes allowed, its ↔ edge selected."""
+    QMessageBox.question = staticmethod(lambda *a: QMessageBox.No)  # no knowledge offer
+    w.open_path(ROOT / "example_sets" / "office_building" / "data.csv")
+    w.hidden_toggle.setChecked(True)
+    w.run()
+    wait(app, lambda: w.session.status == "done")
+    w.canvas.request_fit()
+    both = next(e for e in w.session.result.edges if e.kind == "bidirected")
+    w.session.select_pair(both.source, both.target)
+    pump(app, 200)
+    shot(w, "hidden-causes-window.png")
+    w.hidden_toggle.setChecked(False)
 
 
 def report_shots(app, w):

@@ -682,6 +682,7 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------------------------ commands
     def run(self):
+        self.statusBar().clearMessage()  # a passing note of an earlier step is now stale
         return self.runner.start()
 
     def stop(self):
@@ -698,6 +699,7 @@ class MainWindow(QMainWindow):
     def open_path(self, path) -> bool:
         """Open a data table, a ``.edgewise`` session or a ``.json`` result, by its suffix."""
         path = str(path)
+        self.statusBar().clearMessage()  # a passing note about the previous file
         if Path(path).suffix.lower() == _session.SUFFIX:
             ok = self.session.open_session(path)
         elif Path(path).suffix.lower() == ".json":
