@@ -201,6 +201,21 @@ def _json_bytes(doc, indent) -> int:
     return sum(len(chunk.encode("utf-8")) for chunk in encoder.iterencode(doc))
 
 
+def _dumps(doc, indent) -> str:
+    """``json.dumps(doc, indent=indent, ensure_ascii=False)``, joined a batch of pieces at a
+    time: ``json.dumps`` first lists every piece (millions of small strings for a large
+    result, several times the text's own size)."""
+    encoder = json.JSONEncoder(indent=indent, ensure_ascii=False)
+    parts, batch = [], []
+    for chunk in encoder.iterencode(doc):
+        batch.append(chunk)
+        if len(batch) == 1 << 16:
+            parts.append("".join(batch))
+            batch = []
+    parts.append("".join(batch))
+    return "".join(parts)
+
+
 def omitted_note(tests: int) -> str:
     """The note a document carries when its evidence rows were left out."""
     return (f"The evidence of {tests:,} tests (each test's conditioning set and p-value) was "
@@ -752,7 +767,7 @@ class SearchResult:
         """The JSON text (:meth:`to_dict`); also written to ``path`` when given (atomically,
         without a second copy of the text). :meth:`write_json` writes a file without building
         the text at all."""
-        text = json.dumps(self.to_dict(indent=indent), indent=indent, ensure_ascii=False)
+        text = _dumps(self.to_dict(indent=indent), indent)
         if path is not None:
             with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8") as handle:
                 for start in range(0, len(text), 1 << 20):  # a piece at a time
