@@ -382,8 +382,8 @@ def _html(report: Report) -> str:
             ["collider rule", _e(s.collider_rule)], ["missing values", _e(s.missing)],
             ["test options", _e(", ".join(f"{k}={v}" for k, v in s.test_options) or "none")],
             ["tests run", _e(r.counts.get("tests", len(r.tests)))
-             + (f" (evidence omitted ({r.evidence_omitted:,} tests, {_e(OMITTED_REASON)}): "
-                "each edge's largest p-value and number of tests are kept, not its tests)"
+             + (f"; evidence omitted ({r.evidence_omitted:,} tests, {_e(OMITTED_REASON)}): "
+                "each edge's largest p-value and number of tests are kept, not its tests"
                 if r.evidence_omitted else "")]])]
     out += ["<h2>Knowledge</h2>", _knowledge_html(r)]
     out += ["<h2>Edges</h2>", _edges_html(r, report.support)]
