@@ -166,6 +166,11 @@ class EvidenceLog:
         for block in self._blocks:
             yield self._read(block) if isinstance(block, _OnDisk) else block
 
+    def shapes(self) -> list[tuple[int, int]]:
+        """``(rows, width)`` of every block, without reading spilled blocks back."""
+        return [block.shape if isinstance(block, _OnDisk) else block[0].shape
+                for block in self._blocks]
+
     def __len__(self) -> int:
         """Number of blocks."""
         return len(self._blocks)

@@ -379,13 +379,21 @@ def _cmd_discover(args) -> int:
     from .drawing import draw_result
     from .exchange import write_edge_csv
     from .io import write_dot, write_graphml
+    saved = {}
     _write_outputs([
-        ("--out", outputs["--out"], result.to_json),
+        ("--out", outputs["--out"], lambda p: saved.update(omitted=result.write_json(p))),
         ("--dot", outputs["--dot"], lambda p: write_dot(result, p)),
         ("--graphml", outputs["--graphml"], lambda p: write_graphml(result, p)),
         ("--figure", outputs["--figure"], lambda p: draw_result(result, p)),
         ("--edges", outputs["--edges"], lambda p: write_edge_csv(result, p)),
     ])
+    if saved.get("omitted"):
+        from .files import MAX_DOCUMENT_BYTES
+        print(f"edgewise discover: note: {outputs['--out']} holds the result without the "
+              f"evidence of its {saved['omitted']:,} tests, too large to store (a result file "
+              f"is read back up to {MAX_DOCUMENT_BYTES / 2**20:,.0f} MiB); edges, removed pairs "
+              f"and separating sets are all there; add --explain A,B to see a pair's tests",
+              file=sys.stderr)
     if truth is not None:
         print_truth_scores(result, truth, args.truth)
     if not args.quiet:

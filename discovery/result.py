@@ -24,17 +24,24 @@ import numpy as np
 
 from ._evidence import EvidenceLog
 from .exceptions import ResultFormatError
-from .files import parse_json_checked, read_text_checked, write_text_atomic
+from .files import MAX_DOCUMENT_BYTES, atomic_write, parse_json_checked, read_text_checked
 from .knowledge import Knowledge
 from .settings import SearchSettings
 
 __all__ = ["HIDDEN_CAUSES_ASSUMPTIONS", "Edge", "EDGE_KINDS", "KIND_MARKS", "MARK_MEANINGS",
            "Removal", "TestLog",
            "TestRecord", "PairEvidence", "SearchResult", "Summary",
-           "load_result", "ASSUMPTIONS"]
+           "load_result", "ASSUMPTIONS", "MAX_SAVED_BYTES", "OMITTED_REASON"]
 
 FORMAT = "edgewise-result"
 VERSION = 1
+
+#: A result is written without its evidence rows (``"evidence": {"tests": [], "omitted": N}``)
+#: when, with them, the document would be larger than this many bytes: the reader's limit, so
+#: that every file Edgewise writes reads back. Read when a document is built (tests lower it).
+MAX_SAVED_BYTES = MAX_DOCUMENT_BYTES
+#: ``evidence.omitted_reason`` of such a document.
+OMITTED_REASON = "too large to store"
 
 #: The reason given for an untestable pair when the test gives none of its own.
 NO_PVALUE = "the test returned no p-value"
@@ -147,6 +154,22 @@ class TestLog(Sequence):
     def count_nan(self) -> int:
         return int(sum(np.isnan(p).sum() for _, p in self._blocks))
 
+    def json_bytes(self, indent: int | None = 1) -> int:
+        """An upper bound of the bytes the rows take as ``evidence.tests`` in the result's
+        JSON (UTF-8, at that indent), from each block's row count and width and the longest
+        name, without reading the rows (spilled blocks stay on disk)."""
+        if not self._count:
+            return 0
+        name = max(len(json.dumps(v, ensure_ascii=False).encode("utf-8")) for v in self._names)
+        sizes: dict[int, int] = {}
+        total = 0
+        for shape in self._blocks.shapes():
+            width = shape[1] if len(shape) > 1 else 2
+            if width not in sizes:
+                sizes[width] = _row_json_bytes(width - 2, name - 2, indent)
+            total += shape[0] * sizes[width]
+        return total
+
     def of_pair(self, a: str, b: str) -> list[tuple[tuple[str, ...], float]]:
         """The (conditioning set, p-value) of every test run on the pair {a, b}."""
         try:
@@ -159,6 +182,49 @@ class TestLog(Sequence):
             for r, pv in zip(idx[mask].tolist(), p[mask].tolist()):
                 out.append((tuple(self._names[v] for v in r[2:]), pv))
         return out
+
+
+def _row_json_bytes(given: int, name: int, indent) -> int:
+    """The bytes one evidence row takes in the document (at its depth, with its comma): a
+    row of ``given`` conditioning variables, every name ``name`` bytes long and the longest
+    float text (24 characters)."""
+    n = "n" * name
+    row = {"x": n, "y": n, "given": [n] * given, "pvalue": -1.2345678901234567e-300}
+    one = json.dumps({"evidence": {"tests": [row]}}, indent=indent)
+    return len(json.dumps({"evidence": {"tests": [row, row]}}, indent=indent)) - len(one)
+
+
+def _json_bytes(doc, indent) -> int:
+    """The UTF-8 bytes of ``json.dumps(doc, indent=indent, ensure_ascii=False)``, counted
+    without building the text."""
+    encoder = json.JSONEncoder(indent=indent, ensure_ascii=False)
+    return sum(len(chunk.encode("utf-8")) for chunk in encoder.iterencode(doc))
+
+
+def _dumps(doc, indent) -> str:
+    """``json.dumps(doc, indent=indent, ensure_ascii=False)``, joined a batch of pieces at a
+    time: ``json.dumps`` first lists every piece (millions of small strings for a large
+    result, several times the text's own size)."""
+    encoder = json.JSONEncoder(indent=indent, ensure_ascii=False)
+    parts, batch = [], []
+    for chunk in encoder.iterencode(doc):
+        batch.append(chunk)
+        if len(batch) == 1 << 16:
+            parts.append("".join(batch))
+            batch = []
+    parts.append("".join(batch))
+    return "".join(parts)
+
+
+def omitted_note(tests: int) -> str:
+    """The note a document carries when its evidence rows were left out."""
+    return (f"The evidence of {tests:,} tests (each test's conditioning set and p-value) was "
+            f"left out of this file: it is {OMITTED_REASON} (a result file is read back up to "
+            f"{MAX_DOCUMENT_BYTES / 2**20:,.0f} MiB). Each edge's "
+            "largest p-value and number of tests, and each removed pair's separating set "
+            "and p-value, are kept. To see a pair's tests, re-run the search with the same "
+            "data and settings with --explain A,B (the report gives the command), or call "
+            "result.evidence(a, b) on the result in Python before saving it.")
 
 
 class LazyRecords(Sequence):
@@ -415,6 +481,15 @@ class PairEvidence:
     removal: Removal | None
     tests: tuple[TestRecord, ...]
     triples: tuple[Mapping, ...]
+    #: The tests of the whole result whose rows were left out of its saved file (0 when the
+    #: evidence is whole): ``tests`` is then empty whatever was run on the pair.
+    omitted: int = 0
+
+    @property
+    def omitted_text(self) -> str:
+        """"evidence omitted (N tests, too large to store)", or "" when the evidence is whole."""
+        return (f"evidence omitted ({self.omitted:,} tests, {OMITTED_REASON})"
+                if self.omitted else "")
 
     @property
     def untestable(self) -> str:
@@ -449,7 +524,12 @@ class PairEvidence:
             reason = t.get("reason", "")
             lines.append(f"  triple {t.get('x')} — {t.get('z')} — {t.get('y')}: "
                          f"{t.get('decision', '')}" + (f" ({reason})" if reason else ""))
-        if not self.tests:
+        if self.omitted:
+            kept = (f"; kept: the largest p-value {_pvalue_text(self.edge.max_pvalue)} over "
+                    f"the pair's {self.edge.tests} test(s)" if self.edge else
+                    "; kept: the separating set and p-value above" if self.removal else "")
+            lines.append(f"  tests: {self.omitted_text}{kept}; re-run the search to see them")
+        elif not self.tests:
             lines.append("  no test was run on this pair")
         for t in self.tests:
             p = "no p-value (untestable)" if t.pvalue != t.pvalue else f"p = {t.pvalue:.4g}"
@@ -476,12 +556,18 @@ class PairEvidence:
                        for t in self.tests)
         if rows:
             parts.append(f"<table><tr><th>given</th><th>p-value</th></tr>{rows}</table>")
+        elif self.omitted:
+            parts.append(f"<p>tests: {escape(self.omitted_text)}</p>")
         return "".join(parts)
 
     def __str__(self) -> str:
         return self.as_text()
 
     __repr__ = __str__
+
+
+def _pvalue_text(p) -> str:
+    return "none" if p != p else f"{p:.3g}"
 
 
 def _set_text(s) -> str:
@@ -523,6 +609,9 @@ class SearchResult:
     undecided : tuple of (str, str)
         With the equivalence rule: adjacent pairs the data could neither show related nor
         show within the margin.
+    evidence_omitted : int
+        For a result read from a file whose evidence rows were left out because of their size
+        (see :meth:`to_dict`): how many tests they were; ``tests`` is then empty. 0 otherwise.
     """
 
     variables: tuple[str, ...]
@@ -540,6 +629,7 @@ class SearchResult:
     software: Mapping = field(default_factory=dict)
     seed: int | None = None
     undecided: tuple[tuple[str, str], ...] = ()
+    evidence_omitted: int = 0
 
     def __post_init__(self):
         object.__setattr__(self, "undecided", tuple(tuple(p) for p in self.undecided))
@@ -579,7 +669,8 @@ class SearchResult:
         triples = tuple(t for t in self.triples if {t["x"], t["y"]} == pair
                         or (t["z"] in pair and (t["x"] in pair or t["y"] in pair)))
         edge = self.edge(a, b)
-        return PairEvidence(a, b, edge is not None, edge, removal, tests, triples)
+        return PairEvidence(a, b, edge is not None, edge, removal, tests, triples,
+                            self.evidence_omitted)
 
     def to_networkx(self) -> nx.DiGraph:
         """A DiGraph: a directed edge is one arc; every other kind is two opposite arcs. Every
@@ -624,9 +715,16 @@ class SearchResult:
                 f"alpha={self.settings.alpha})")
 
     # -- serialisation ------------------------------------------------------------------------
-    def to_dict(self) -> dict:
-        """The JSON document (plain dicts and lists)."""
-        return {
+    def to_dict(self, *, indent: int | None = 1) -> dict:
+        """The JSON document (plain dicts and lists).
+
+        When the evidence rows would make the document, written at ``indent``, larger than
+        :data:`MAX_SAVED_BYTES` (the reader's limit), they are left out:
+        ``"evidence": {"tests": [], "omitted": N, "omitted_reason": "too large to store"}``
+        and a note says so; every other part (edges with their largest p-value and test count,
+        removed pairs with their separating sets, triples, counts) is kept.
+        """
+        doc = {
             "format": FORMAT,
             "version": VERSION,
             "variables": list(self.variables),
@@ -637,8 +735,7 @@ class SearchResult:
             "triples": [dict(t) for t in self.triples],
             "conflicts": list(self.conflicts),
             "notes": list(self.notes),
-            "evidence": {"tests": [{"x": x, "y": y, "given": list(s), "pvalue": _num(p)}
-                                   for x, y, s, p in self.tests]},
+            "evidence": {"tests": []},
             "counts": dict(self.counts),
             "timings": dict(self.timings),
             "data": dict(self.data),
@@ -647,17 +744,52 @@ class SearchResult:
             "undecided": [list(p) for p in self.undecided],
             "assumptions": list(self.assumptions()),
         }
+        omitted = self.evidence_omitted
+        if len(self.tests) and not omitted:
+            limit = MAX_SAVED_BYTES - 64  # 64: the list's brackets and the final newline
+            size = self.tests.json_bytes(indent)
+            if size > limit or size + _json_bytes(doc, indent) > limit:
+                omitted = len(self.tests)
+            else:
+                doc["evidence"]["tests"] = [{"x": x, "y": y, "given": list(s), "pvalue": _num(p)}
+                                            for x, y, s, p in self.tests]
+        if omitted:
+            doc["evidence"] = {"tests": [], "omitted": omitted, "omitted_reason": OMITTED_REASON}
+            if omitted_note(omitted) not in doc["notes"]:
+                doc["notes"].append(omitted_note(omitted))
+        return doc
 
     def assumptions(self) -> tuple[str, ...]:
         """The assumptions and cautions of this result's search mode."""
         return HIDDEN_CAUSES_ASSUMPTIONS if self.settings.hidden_causes else ASSUMPTIONS
 
     def to_json(self, path=None, *, indent: int | None = 1) -> str:
-        """The JSON text; also written to ``path`` when given."""
-        text = json.dumps(self.to_dict(), indent=indent, ensure_ascii=False)
+        """The JSON text (:meth:`to_dict`); also written to ``path`` when given (atomically,
+        without a second copy of the text). :meth:`write_json` writes a file without building
+        the text at all."""
+        text = _dumps(self.to_dict(indent=indent), indent)
         if path is not None:
-            write_text_atomic(path, text + "\n")
+            with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8") as handle:
+                for start in range(0, len(text), 1 << 20):  # a piece at a time
+                    handle.write(text[start:start + (1 << 20)])
+                handle.write("\n")
         return text
+
+    def write_json(self, path, *, indent: int | None = 1) -> int:
+        """Write the JSON document to ``path`` atomically, streamed piece by piece (the text
+        is never held whole); the file is the same as :meth:`to_json`'s.
+
+        Returns
+        -------
+        int
+            The number of tests whose rows were left out because of their size (see
+            :meth:`to_dict`); 0 when the evidence was written whole.
+        """
+        doc = self.to_dict(indent=indent)
+        with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8") as handle:
+            json.dump(doc, handle, indent=indent, ensure_ascii=False)
+            handle.write("\n")
+        return doc["evidence"].get("omitted", 0)
 
     @classmethod
     def from_dict(cls, doc: dict, *, source: str = "result") -> "SearchResult":
@@ -740,11 +872,17 @@ def _from_dict(doc, source) -> SearchResult:
         rows = doc["evidence"]["tests"]
         if not isinstance(rows, list):
             fail("'evidence.tests' must be a list of test rows")
+        omitted = doc["evidence"].get("omitted", 0)
+        if isinstance(omitted, bool) or not isinstance(omitted, int) or omitted < 0:
+            fail("'evidence.omitted' must be a whole number of tests (0 or more)")
+        if omitted and rows:
+            fail("'evidence' has test rows and says they were omitted")
         tests = TestLog.from_rows(_test_row(t, known, fail) for t in rows)
         extras = _checked_extras(doc, known, fail)
         return SearchResult(
             variables=tuple(variables), settings=settings, knowledge=knowledge,
-            edges=tuple(edges), removed=tuple(removed), tests=tests, **extras)
+            edges=tuple(edges), removed=tuple(removed), tests=tests,
+            evidence_omitted=omitted, **extras)
     except ResultFormatError:
         raise
     except (KeyError, TypeError, ValueError, AttributeError, IndexError) as err:
@@ -927,6 +1065,9 @@ class Summary:
             line += (f"; {extra} more to gather separating sets for the "
                      f"{self.result.settings.collider_rule} collider rule "
                      f"({c.get('collider_tests_from_cache', 0)} from the cache)")
+        if self.result.evidence_omitted:
+            line += (f"; evidence omitted ({self.result.evidence_omitted:,} tests, "
+                     f"{OMITTED_REASON})")
         return line
 
     def as_text(self, *, assumptions: bool = True) -> str:

@@ -28,7 +28,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..exceptions import DiscoveryError
-from ..result import ASSUMPTIONS, SearchResult
+from ..result import ASSUMPTIONS, OMITTED_REASON, SearchResult
 
 __all__ = ["Report", "build_report", "write_report", "reproduce_command", "read_analysis",
            "ANALYSIS_FORMATS", "REPORT_FORMATS"]
@@ -381,7 +381,10 @@ def _html(report: Report) -> str:
              "unlimited" if s.max_depth is None else _e(s.max_depth)],
             ["collider rule", _e(s.collider_rule)], ["missing values", _e(s.missing)],
             ["test options", _e(", ".join(f"{k}={v}" for k, v in s.test_options) or "none")],
-            ["tests run", _e(r.counts.get("tests", len(r.tests)))]])]
+            ["tests run", _e(r.counts.get("tests", len(r.tests)))
+             + (f"; evidence omitted ({r.evidence_omitted:,} tests, {_e(OMITTED_REASON)}): "
+                "each edge's largest p-value and number of tests are kept, not its tests"
+                if r.evidence_omitted else "")]])]
     out += ["<h2>Knowledge</h2>", _knowledge_html(r)]
     out += ["<h2>Edges</h2>", _edges_html(r, report.support)]
     if not r.data.get("diagram"):

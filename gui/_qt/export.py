@@ -98,7 +98,7 @@ def export(session, canvas, kind: str, path) -> Path:
             _render(canvas, painter, page, source)
             painter.end()
         elif kind == "json":
-            session.result.to_json(path)
+            session.result.write_json(path)
         else:
             try:
                 from discovery import io as engine_io

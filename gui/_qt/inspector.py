@@ -340,7 +340,10 @@ class Inspector(QWidget):
     def _fill_tests(self, evidence, alpha, *, equivalence=False):
         tests = list(evidence.tests) if evidence is not None else []
         self._show_tests(True)
-        self.tests_label.setText(f"Tests on this pair ({len(tests)})")
+        omitted = getattr(evidence, "omitted_text", "") if evidence is not None else ""
+        self.tests_label.setText(f"Tests on this pair: {omitted}; re-run the search to see "
+                                 "them" if omitted else f"Tests on this pair ({len(tests)})")
+        self.tests_label.setWordWrap(bool(omitted))
         self.tests.setRowCount(len(tests))
         for row, t in enumerate(tests):
             if equivalence:  # equivalence p-values: small means shown unrelated
