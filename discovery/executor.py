@@ -74,8 +74,12 @@ from .exceptions import ClusterError, DiscoveryError, SearchCancelled, WorkerErr
 __all__ = ["Executor", "InProcessExecutor", "ProcessExecutor", "DaskExecutor", "blas_threads",
            "make_executor"]
 
-#: Batches whose estimated in-process cost is below this many seconds stay in-process.
+#: Batches whose estimated in-process cost is below this many seconds stay in-process ...
 MIN_SECONDS = 0.1
+#: ... and below this many times as long while no local worker runs yet: starting one and
+#: warming its caches costs about 0.1-0.2 s, which only a batch of half a second can repay
+#: (so a short search, e.g. the mixed test on a few thousand rows, stays in-process).
+START_FACTOR = 5
 #: Seconds of work a chunk aims at (more chunks than workers keep the workers evenly busy).
 CHUNK_SECONDS = 0.1
 #: Spread batches only while the workers together get at least this many cores of CPU.
@@ -300,14 +304,20 @@ class _Spreading(Executor):
                 self._cost.pop(next(iter(self._cost)))
         head = []
         if rate.here is None or self.jobs < 2 or len(rows) < 2:
-            # time the first row here (its answer is kept): the estimate decides the rest
-            started = time.perf_counter()
-            head = [np.asarray(fn(shared, rows[:1]))]
-            rate.learn("here", time.perf_counter() - started, 1)
-        rest = rows[len(head):]
+            # time the first rows here (their answers are kept): the estimate decides the
+            # rest. The first row of a new kind often pays one-off costs (a first call, a
+            # cache filled), so a second row, when there is one, is what is learned.
+            for k in range(min(2, len(rows))):
+                started = time.perf_counter()
+                head.append(np.asarray(fn(shared, rows[k:k + 1])))
+                seconds = time.perf_counter() - started
+            rate.here = None
+            rate.learn("here", seconds, 1)
+        rest = rows[sum(len(h) for h in head):]
         if not len(rest):
             return np.concatenate(head)
-        if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < self.min_seconds \
+        needed = self.min_seconds * (1 if self._started() else START_FACTOR)
+        if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < needed \
                 or not self._spreading_pays():
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
@@ -337,14 +347,17 @@ class _Spreading(Executor):
     def _prepare(self) -> None:
         """Get workers ready (a no-op where they are always ready)."""
 
-    def _spreading_pays(self) -> bool:
-        """Whether the workers together get more CPU than the caller would alone.
+    def _started(self) -> bool:
+        """Whether workers are running (a cluster's always are)."""
+        return True
 
-        Spreading costs extra work (each worker builds its own caches and starts cold):
-        1.3 to 1.6 times the CPU for the kernel test in our runs. It pays only when
-        the workers together get clearly more than one core; while other work keeps the
-        cores busy they do not, and batches stay in-process. Every fourth batch held back is
-        spread anyway, to notice when cores come free.
+    def _spreading_pays(self) -> bool:
+        """Whether the processes together get more CPU than the caller would alone.
+
+        Spreading costs extra work (a worker builds its own caches and starts cold), so it
+        pays only when the processes together get clearly more than one core; while other
+        work keeps the cores busy they do not, and batches stay in-process. Every fourth
+        batch held back is spread anyway, to notice when cores come free.
         """
         if self._cores is None or self._cores >= SPREAD_CORES:
             return True
@@ -558,6 +571,9 @@ class ProcessExecutor(_Spreading):
     def _prepare(self):
         with self._lock:
             self._ready_workers()
+
+    def _started(self) -> bool:
+        return bool(self._workers) or self.jobs < 2
 
     def _token_of(self, obj):
         if obj is None:
