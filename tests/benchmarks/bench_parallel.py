@@ -191,7 +191,7 @@ def parallel_figures(quick: bool = False, repeat: int | None = None, only=None) 
         if only and test not in only:
             continue
         frame = make()
-        fig = speedup(frame, test, repeat if test != "g-squared" else 1)
+        fig = speedup(frame, test, repeat)
         fig["label"] = label
         fig["test"] = test
         out[key] = fig
@@ -246,8 +246,8 @@ def format_section(figures: dict, machine: str, quick: bool, repeat: int,
               "best of the runs); the 2-process search may keep batches in-process when the "
               "processes get too little CPU for spreading to pay (docs/parallel.md). The "
               "'every batch spread' run (once) turns that rule off: its CPU against the "
-              "in-process CPU is the extra work spreading costs, and 'cores got' is the CPU "
-              "the two processes got together per second of the batches' wall time (2 on free "
+              "in-process CPU is the extra work spreading costs, and 'cores got' is each "
+              "piece's CPU over its own wall time, times the two processes (2 on free "
               "cores). On free cores the 2-process time would be about the in-process time × "
               "(spread CPU / in-process CPU) / 2, when the chunks balance."
               + _vectorised_note(figures), "",
