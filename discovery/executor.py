@@ -65,6 +65,7 @@ import uuid
 import warnings
 from collections import OrderedDict, deque
 from multiprocessing.connection import wait as _wait_ready
+from multiprocessing.reduction import ForkingPickler
 from typing import Callable, Sequence
 
 import numpy as np
@@ -89,7 +90,7 @@ _KEEP_SHARED = 2
 #: Seconds to wait for a cluster's scheduler before giving up.
 CLUSTER_TIMEOUT = 10.0
 _POLL = 0.1
-#: Pieces sent ahead to each local worker (small row pieces only; see _fits_pipe).
+#: Pieces sent to each local worker at once (a second only when its message is small).
 _IN_FLIGHT = 2
 _PIPE_BYTES = 65536  # the smallest pipe buffer of the systems we run on (Linux, macOS)
 
@@ -501,12 +502,6 @@ def _exit_text(code) -> str:
     return f"it exited with status {code}"
 
 
-def _fits_pipe(part, mode) -> bool:
-    """Whether a piece, and its answer, are small enough to send ahead: both then fit the
-    pipe's buffer, so caller and worker can never block each other writing."""
-    return mode == "rows" and getattr(part, "nbytes", _PIPE_BYTES) < _PIPE_BYTES // 4
-
-
 def _lost(w: _Worker, parts) -> WorkerError:
     w.process.join(1)
     return WorkerError(
@@ -601,13 +596,18 @@ class ProcessExecutor(_Spreading):
         try:
             while todo or busy:
                 for w in workers:
-                    # two pieces in flight: a worker never waits for the caller to read its
-                    # last answer before it can start the next piece
-                    # (a second piece only while more remain, so that the caller never
-                    # waits at the end of a batch for a piece it could have taken)
-                    while todo and (not w.tasks or (len(w.tasks) < _IN_FLIGHT and len(todo) > 2
-                                                     and _fits_pipe(parts[todo[0]], mode))):
-                        i = todo.popleft()
+                    # Two pieces in flight: a worker never waits for the caller to read its
+                    # last answer before it can start the next piece. A second piece goes
+                    # only while more remain (so that the caller never waits at the end of
+                    # a batch for a piece it could have taken) and only when its message is
+                    # small: it then fits the pipe's buffer, so sending it never blocks
+                    # while the worker writes a long answer.
+                    while todo and len(w.tasks) < _IN_FLIGHT:
+                        i = todo[0]
+                        message = ForkingPickler.dumps(("run", i, token, fn, parts[i], mode))
+                        if w.tasks and (len(todo) <= 2 or len(message) >= _PIPE_BYTES // 4):
+                            break
+                        todo.popleft()
                         w.tasks.append(i)
                         busy[w.conn] = w
                         try:
@@ -615,7 +615,7 @@ class ProcessExecutor(_Spreading):
                                 w.conn.send(("share", token))
                                 w.conn.send_bytes(payload)
                                 w.tokens.add(token)
-                            w.conn.send(("run", i, token, fn, parts[i], mode))
+                            w.conn.send_bytes(message)
                         except OSError:  # the worker is gone (killed while we sent)
                             raise _lost(w, parts) from None
                 if cancelled is not None and cancelled():

@@ -305,14 +305,14 @@ def _consensus(pairs, cutoff, pag=False) -> tuple[Edge, ...]:
     return tuple(edges)
 
 
-def _run_resamples(task):
+def _run_resamples(frame, task):
     """Search each resample of a chunk; return ``(index, [(a, b, orientation)] or None)``.
-    Module-level so that worker processes can run it."""
+    Module-level so that worker processes can run it; ``frame`` is sent to each worker once."""
     import multiprocessing
 
     from ..executor import blas_threads
     from ..search import discover
-    frame, method, options, streams = task
+    method, options, streams = task
     # in a worker process, one BLAS thread: processes already fill the cores, and spinning
     # BLAS threads of two processes on two cores slow both down
     with blas_threads(1 if multiprocessing.parent_process() is not None else None):
@@ -439,21 +439,27 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
     options = dict(discover_options)
     found: list = [None] * len(streams)
     with _executor(jobs, cluster) as executor:
-        # in-process: small chunks, for frequent progress and a quick Stop
-        chunks = executor.chunks(streams, per_job=4 if executor.jobs > 1 else 25)
-        wave = max(1, executor.jobs)
-        done = 0
-        for start in range(0, len(chunks), wave):
-            if cancelled is not None and cancelled():
-                raise SearchCancelled("the resampling was stopped before it finished")
-            tasks = [(frame, method, options, chunk) for chunk in chunks[start:start + wave]]
-            for part in executor.map(_run_resamples, tasks):
-                for index, edges in part:
-                    found[index] = edges
-                    done += 1
+        # small chunks: frequent progress, a quick Stop, and processes kept evenly busy (the
+        # caller and the workers take chunks as they free up)
+        chunks = executor.chunks(streams, per_job=8 if executor.jobs > 1 else 25)
+        per_chunk = len(streams) / len(chunks)
+
+        def tick(done_chunks, total):
             if progress is not None:
+                done = len(streams) if done_chunks == total else int(done_chunks * per_chunk)
                 progress({"phase": "support", "level": 0, "done": done,
                           "planned": len(streams)})
+
+        if cancelled is not None and cancelled():
+            raise SearchCancelled("the resampling was stopped before it finished")
+        try:
+            parts = executor.map(_run_resamples, [(method, options, c) for c in chunks],
+                                 shared=frame, cancel=cancelled, progress=tick)
+        except SearchCancelled:
+            raise SearchCancelled("the resampling was stopped before it finished") from None
+        for part in parts:
+            for index, edges in part:
+                found[index] = edges
     finished = [f for f in found if f is not None]
     if not finished:
         raise DataValidationError("the search failed on every resample (e.g. a column is "
