@@ -282,7 +282,7 @@ class _Spreading(Executor):
         if self._local and (self.jobs < 2 or len(items) < 2):
             return InProcessExecutor().map(fn, items, shared=shared, cancel=cancel,
                                            progress=progress)
-        parts = self.chunks(items)
+        parts = self.chunks(items, per_job=self.chunks_per_job)
         done = [0]
 
         def tick(part_index):
@@ -535,6 +535,7 @@ class ProcessExecutor(_Spreading):
     # of a batch.
     chunk_seconds = 0.03
     chunks_per_job = 16
+    caller_works = True
     chunks_min_per_job = 2  # a worker holds two pieces at once; the caller needs its own
 
     def __init__(self, jobs: int | None = None, *, min_seconds: float | None = None):
@@ -551,7 +552,7 @@ class ProcessExecutor(_Spreading):
             if not w.alive():
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
-        if len(self._workers) < self.jobs - 1:
+        if len(self._workers) < self.jobs - self.caller_works:
             # find the BLAS libraries here, once: forked workers inherit what was found
             # (finding them reads the process's memory map and library files: ~0.1 s)
             blas_threads(1)
@@ -559,7 +560,7 @@ class ProcessExecutor(_Spreading):
             context = multiprocessing.get_context(method)
             if method == "forkserver":  # workers fork from a server that imported these once
                 context.set_forkserver_preload(["discovery.independence", "discovery.search"])
-            while len(self._workers) < self.jobs - 1:  # the caller is the last job
+            while len(self._workers) < self.jobs - self.caller_works:  # the caller works too
                 self._workers.append(_Worker(context))
         return self._workers
 
@@ -620,7 +621,7 @@ class ProcessExecutor(_Spreading):
                             raise _lost(w, parts) from None
                 if cancelled is not None and cancelled():
                     raise _stopped()
-                worked = bool(todo)
+                worked = bool(todo) and self.caller_works
                 if worked:  # the caller computes the last piece waiting, then looks again
                     i = todo.pop()
                     outs[i], spent = self._run_here(fn, shared, parts[i], mode)
