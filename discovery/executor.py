@@ -308,7 +308,7 @@ class _Spreading(Executor):
             # time the first rows here (their answers are kept): the estimate decides the
             # rest. The first row of a new kind often pays one-off costs (a first call, a
             # cache filled), so a second row, when there is one, is what is learned.
-            for k in range(min(2, len(rows))):
+            for k in range(2 if len(rows) >= 4 else 1):
                 started = time.perf_counter()
                 head.append(np.asarray(fn(shared, rows[k:k + 1])))
                 seconds = time.perf_counter() - started
