@@ -44,11 +44,7 @@ def test_the_cache_answers_what_a_dictionary_would(n_vars, width):
         if reference and rng.random() < 0.5:  # repeat some rows already known
             old = np.array(list(reference)[: int(rng.integers(1, 50))])
             rows = np.concatenate([rows, old])
-        got = cache.pvalues_array(test, rows)
-        for r, p in zip(map(tuple, rows.tolist()), got.tolist()):
-            if r in reference:
-                assert (np.isnan(p) and np.isnan(reference[r])) or p == reference[r]
-            reference.setdefault(r, p)
+        _ask_and_compare(cache, test, rows, reference)
     assert len(cache) == len(reference)
     # every row in the reference is answered from the cache now, nothing recomputed
     before = test.computed
@@ -70,11 +66,7 @@ def test_a_full_store_keeps_its_budget_and_still_answers_what_a_dictionary_would
         rows = _rows(rng, n_vars, width, int(rng.integers(1, 200)))
         if reference and rng.random() < 0.5:
             rows = np.concatenate([rows, np.array(list(reference)[: int(rng.integers(1, 50))])])
-        got = cache.pvalues_array(test, rows)
-        for r, p in zip(map(tuple, rows.tolist()), got.tolist()):
-            if r in reference:
-                assert (np.isnan(p) and np.isnan(reference[r])) or p == reference[r]
-            reference.setdefault(r, p)
+        _ask_and_compare(cache, test, rows, reference)
         assert cache.nbytes <= budget  # the budget is honoured after every batch
         # the count is of rows as handed over: copies within a batch are kept once
         assert sum(t.nbytes for t in cache._store.values()) <= cache.nbytes
@@ -85,6 +77,16 @@ def test_a_full_store_keeps_its_budget_and_still_answers_what_a_dictionary_would
     want = np.array(list(reference.values()))
     assert np.array_equal(np.isnan(again), np.isnan(want))
     assert np.array_equal(again[~np.isnan(want)], want[~np.isnan(want)])
+
+
+def _ask_and_compare(cache, test, rows, reference):
+    """Ask the cache for ``rows``; every row asked before must get its earlier answer (the
+    plain dictionary ``reference``, which then learns the new rows)."""
+    got = cache.pvalues_array(test, rows)
+    for r, p in zip(map(tuple, rows.tolist()), got.tolist()):
+        if r in reference:
+            assert (np.isnan(p) and np.isnan(reference[r])) or p == reference[r]
+        reference.setdefault(r, p)
 
 
 def test_the_default_budget_is_a_share_of_the_memory(monkeypatch):
@@ -108,11 +110,7 @@ def test_wide_rows_whose_keys_collide_are_told_apart(monkeypatch):
         rows = _rows(rng, 300, 9, int(rng.integers(1, 300)))  # 9 x 9 bits: two words
         if reference and rng.random() < 0.5:
             rows = np.concatenate([rows, np.array(list(reference)[: int(rng.integers(1, 40))])])
-        got = cache.pvalues_array(test, rows)
-        for r, p in zip(map(tuple, rows.tolist()), got.tolist()):
-            if r in reference:
-                assert (np.isnan(p) and np.isnan(reference[r])) or p == reference[r]
-            reference.setdefault(r, p)
+        _ask_and_compare(cache, test, rows, reference)
     assert len(cache) == len(reference)
     before = test.computed
     again = cache.pvalues_array(test, np.array(list(reference))[::-1])

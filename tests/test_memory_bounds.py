@@ -15,7 +15,6 @@ import pickle
 import numpy as np
 import pandas as pd
 import pytest
-import statsmodels.api as sm
 from scipy import stats
 
 from discovery import DegenerateDataWarning, FisherZ, discover
@@ -24,6 +23,7 @@ from discovery._evidence import EvidenceLog
 from discovery.data import prepare_frame
 from discovery.independence import _fisher_z
 from discovery.simulate import random_dag, sample_linear_gaussian
+from test_fisher_z import residual_correlation
 
 
 @pytest.fixture(scope="module")
@@ -145,13 +145,7 @@ def test_spilled_evidence_matches_statsmodels_and_scipy(frame, monkeypatch):
     rng = np.random.default_rng(0)
     wide = [r for r in rows if len(r[2]) >= 2]
     for x, y, given, p in [rows[i] for i in rng.choice(len(rows), 6, replace=False)] + wide[:4]:
-        if given:
-            design = sm.add_constant(frame[list(given)])
-            rx = sm.OLS(frame[x], design).fit().resid
-            ry = sm.OLS(frame[y], design).fit().resid
-        else:
-            rx, ry = frame[x] - frame[x].mean(), frame[y] - frame[y].mean()
-        r = np.corrcoef(rx, ry)[0, 1]
+        r = residual_correlation(frame, x, y, given)  # statsmodels OLS residuals
         z = np.arctanh(r) * np.sqrt(len(frame) - len(given) - 3)
         assert p == pytest.approx(2 * stats.norm.sf(abs(z)), rel=1e-6, abs=1e-300)
 
