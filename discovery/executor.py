@@ -312,8 +312,7 @@ class _Spreading(Executor):
                 started = time.perf_counter()
                 head.append(np.asarray(fn(shared, rows[k:k + 1])))
                 seconds = time.perf_counter() - started
-            rate.here = None
-            rate.learn("here", seconds, 1)
+            rate.here = seconds  # the last row timed (a fresh estimate, not an average)
         rest = rows[sum(len(h) for h in head):]
         if not len(rest):
             return np.concatenate(head)
@@ -553,9 +552,6 @@ class ProcessExecutor(_Spreading):
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
         if len(self._workers) < self.jobs - self.caller_works:
-            # find the BLAS libraries here, once: forked workers inherit what was found
-            # (finding them reads the process's memory map and library files: ~0.1 s)
-            blas_threads(1)
             method = _start_method()
             context = multiprocessing.get_context(method)
             if method == "forkserver":  # workers fork from a server that imported these once
@@ -594,6 +590,7 @@ class ProcessExecutor(_Spreading):
         outs: list = [None] * len(parts)
         seconds = np.zeros(2)
         busy: dict = {}  # conn -> worker
+        messages: dict = {}  # piece -> its pickled "run" message, until sent
         try:
             while todo or busy:
                 for w in workers:
@@ -604,10 +601,15 @@ class ProcessExecutor(_Spreading):
                     # small: it then fits the pipe's buffer, so sending it never blocks
                     # while the worker writes a long answer.
                     while todo and len(w.tasks) < _IN_FLIGHT:
-                        i = todo[0]
-                        message = ForkingPickler.dumps(("run", i, token, fn, parts[i], mode))
-                        if w.tasks and (len(todo) <= 2 or len(message) >= _PIPE_BYTES // 4):
+                        if w.tasks and len(todo) <= 2:
                             break
+                        i = todo[0]
+                        if i not in messages:  # pickled once, however often it waits
+                            messages[i] = ForkingPickler.dumps(
+                                ("run", i, token, fn, parts[i], mode))
+                        if w.tasks and len(messages[i]) >= _PIPE_BYTES // 4:
+                            break
+                        message = messages.pop(i)
                         todo.popleft()
                         w.tasks.append(i)
                         busy[w.conn] = w
