@@ -57,6 +57,7 @@ import itertools
 import multiprocessing
 import os
 import pickle
+import queue
 import signal
 import threading
 import time
@@ -80,7 +81,9 @@ MIN_SECONDS = 0.1
 #: ... and below this many times as long while no local worker runs yet: starting one and
 #: warming its caches costs about 0.1-0.2 s, which only a batch of half a second can repay
 #: (so a short search, e.g. the mixed test on a few thousand rows, stays in-process).
-START_FACTOR = 5
+START_FACTOR = 1
+#: Seconds of rows a batch of a new kind runs in-process first, to estimate the rest's cost.
+PROBE_SECONDS = 0.03
 #: Seconds of work a chunk aims at (more chunks than workers keep the workers evenly busy).
 CHUNK_SECONDS = 0.1
 #: Spread batches only while the workers together get at least this many cores of CPU.
@@ -270,6 +273,7 @@ class _Spreading(Executor):
         self._cores = None  # CPU the workers got together, in cores (running estimate)
         self._held_back = 0
         self._cost: dict = {}  # (id of shared, row width) -> _Rates
+        self._last_rate: dict = {}  # id of shared -> seconds a row of its latest batch took
         self._cost_lock = threading.Lock()
 
     def map(self, fn, items, *, shared=None, cancel=None, progress=None):
@@ -304,15 +308,18 @@ class _Spreading(Executor):
             while len(self._cost) > 64:  # estimates of tests long gone
                 self._cost.pop(next(iter(self._cost)))
         head = []
+        guessed = False
         if rate.here is None or self.jobs < 2 or len(rows) < 2:
-            # time the first rows here (their answers are kept): the estimate decides the
-            # rest. The first row of a new kind often pays one-off costs (a first call, a
-            # cache filled), so a second row, when there is one, is what is learned.
-            for k in range(2 if len(rows) >= 4 else 1):
-                started = time.perf_counter()
-                head.append(np.asarray(fn(shared, rows[k:k + 1])))
-                seconds = time.perf_counter() - started
-            rate.here = seconds  # the last row timed (a fresh estimate, not an average)
+            # A new kind of batch (a deeper level) is timed here first, while the workers
+            # wait; when workers run and the last batch of this test says this one is
+            # clearly worth spreading (its rows cost at least as much with one more
+            # variable given), it is spread at once and its cost learned from the workers.
+            last = self._last_rate.get(id(shared))
+            if last is not None and self.jobs >= 2 and len(rows) >= 2 * self.jobs \
+                    and self._started() and last * len(rows) >= 2 * self.min_seconds:
+                rate.here, guessed = last, True
+            else:
+                rate.here = self._probe(fn, shared, rows, head)
         rest = rows[sum(len(h) for h in head):]
         if not len(rest):
             return np.concatenate(head)
@@ -322,6 +329,7 @@ class _Spreading(Executor):
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
             rate.learn("here", time.perf_counter() - started, len(rest))
+            self._remember(shared, rate.here)
             return np.concatenate(head + [out])
         # Chunks of about chunk_seconds each, between one and chunks_per_job per worker:
         # enough to even out the workers' loads, few enough that rows sharing a conditioning
@@ -336,6 +344,9 @@ class _Spreading(Executor):
         self._prepare()  # start workers before the first piece goes out
         outs, (seconds, cpu) = self._dispatch(fn, shared, parts, "rows", check, None)
         rate.learn("work", seconds, len(rest))
+        if guessed:
+            rate.here = rate.work  # a piece's rows cost about the same in any process
+        self._remember(shared, rate.work)
         if seconds > 0.02:
             # The cores the computing processes got together: each piece's CPU over its own
             # wall time says whether its process had a core while it ran (start-up, pipes
@@ -343,6 +354,37 @@ class _Spreading(Executor):
             cores = min(self.jobs, len(parts)) * cpu / seconds
             self._cores = cores if self._cores is None else 0.5 * (self._cores + cores)
         return np.concatenate(head + [np.asarray(o) for o in outs])
+
+    def _remember(self, shared, per_row: float) -> None:
+        """Keep the seconds a row of the latest batch of this shared object took."""
+        with self._cost_lock:
+            self._last_rate.pop(id(shared), None)
+            self._last_rate[id(shared)] = per_row
+            while len(self._last_rate) > 64:
+                self._last_rate.pop(next(iter(self._last_rate)))
+
+    @staticmethod
+    def _probe(fn, shared, rows, head: list) -> float:
+        """Run the first rows here (their answers go to ``head``) and return the seconds a
+        row took: rows in pieces of 1, 1, 2, 4, ... until they took :data:`PROBE_SECONDS`,
+        leaving at least two rows (a batch of three or fewer: one row). The first row of a
+        new kind often pays one-off costs (a first call, a cache filled), so it is left out
+        of the estimate when there are others; one or two rows alone misjudged batches
+        whose rows differ in cost (a mixed-data batch with fast all-discrete rows first)."""
+        done, size, first, rest_seconds = 0, 1, 0.0, 0.0
+        while done == 0 or (len(rows) - done > 2
+                            and (done < 2 or first + rest_seconds < PROBE_SECONDS)):
+            take = min(size, len(rows) - done - 2) if done else 1
+            started = time.perf_counter()
+            head.append(np.asarray(fn(shared, rows[done:done + take])))
+            seconds = time.perf_counter() - started
+            if done == 0:
+                first = seconds
+            else:
+                rest_seconds += seconds
+                size *= 2
+            done += take
+        return rest_seconds / (done - 1) if done > 1 else first
 
     def _prepare(self) -> None:
         """Get workers ready (a no-op where they are always ready)."""
@@ -405,6 +447,8 @@ def _cuts(m: int, count: int, groups) -> list[int]:
 def _worker_main(conn):
     """Loop of a local worker process: keep shared objects, run pieces, answer."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's to handle
+    # one BLAS thread for the worker's life (inherited from a forking parent: nothing to do)
+    blas_threads(1).__enter__()
     parent = os.getppid()
     shared: OrderedDict = OrderedDict()
     while True:
@@ -509,6 +553,45 @@ def _lost(w: _Worker, parts) -> WorkerError:
         "nothing was kept — run again, with fewer jobs if memory is short")
 
 
+class _Batch:
+    """One spread batch, shared by the caller's thread and the feeding thread: the pieces
+    not yet taken (the caller takes from the back, the workers' feeder from the front),
+    outputs, the news the feeder reports, and the flag that stops it."""
+
+    def __init__(self, parts):
+        self.parts = parts
+        self.outs: list = [None] * len(parts)
+        self.seconds = np.zeros(2)  # wall and CPU seconds of the workers' pieces
+        self.busy: dict = {}  # conn -> worker with pieces in flight (the feeder's, until it ends)
+        self.news: queue.SimpleQueue = queue.SimpleQueue()
+        self.ended = self.stopped = False
+        self._todo = deque(range(len(parts)))
+        self._lock = threading.Lock()
+        self.wake, self._wake_w = os.pipe()  # written to end the feeder's wait at once
+
+    def take_last(self):
+        with self._lock:
+            return self._todo.pop() if self._todo else None
+
+    def take_first(self, more_than: int = 0):
+        with self._lock:
+            return self._todo.popleft() if len(self._todo) > more_than else None
+
+    def put_back_first(self, i) -> None:
+        with self._lock:
+            self._todo.appendleft(i)
+
+    def stop(self) -> None:
+        self.stopped = True
+        with contextlib.suppress(OSError):
+            os.write(self._wake_w, b"x")
+
+    def close(self) -> None:
+        for fd in (self.wake, self._wake_w):
+            with contextlib.suppress(OSError):
+                os.close(fd)
+
+
 class ProcessExecutor(_Spreading):
     """Spread work over ``jobs`` processes: the calling one and ``jobs - 1`` local workers
     (default: as many as CPU cores).
@@ -540,6 +623,8 @@ class ProcessExecutor(_Spreading):
     def __init__(self, jobs: int | None = None, *, min_seconds: float | None = None):
         self.jobs = int(jobs) if jobs else (os.cpu_count() or 1)
         self._workers: list[_Worker] = []
+        self._blas = contextlib.ExitStack()  # the one-thread BLAS limit held while workers run
+        self._blas_held = False
         self._shared: dict = {}  # id(obj) -> (obj, token, payload bytes or None)
         self._tokens = itertools.count()
         self._lock = threading.Lock()
@@ -552,6 +637,15 @@ class ProcessExecutor(_Spreading):
                 w.end()
         self._workers = [w for w in self._workers if w.alive()]
         if len(self._workers) < self.jobs - self.caller_works:
+            # One BLAS thread here from before the first fork until close(): the processes
+            # fill the cores, and OpenBLAS restarts its thread pool on the first setting
+            # after a fork, its new threads spinning for about 0.1 s. Set once before the
+            # fork, the workers inherit it and no piece sets it again (blas_threads leaves
+            # an unchanged limit alone); set per piece, it made the first pieces of each
+            # process take 2-3 times their CPU time.
+            if not self._blas_held:
+                self._blas.enter_context(blas_threads(1))
+                self._blas_held = True
             method = _start_method()
             context = multiprocessing.get_context(method)
             if method == "forkserver":  # workers fork from a server that imported these once
@@ -584,33 +678,91 @@ class ProcessExecutor(_Spreading):
             return self._dispatch_locked(fn, shared, parts, mode, cancelled, tick)
 
     def _dispatch_locked(self, fn, shared, parts, mode, cancelled, tick):
+        """The caller computes pieces from the back of the queue in this thread while a
+        feeding thread keeps the workers supplied from the front: a worker's answer is read
+        and its next piece sent at once (within Python's thread switch interval, 5 ms),
+        not after the caller's own piece (when the caller fed them between its pieces, the
+        workers stood idle for a quarter of a batch)."""
         workers = self._ready_workers()
         token, payload = self._token_of(shared)
-        todo = deque(range(len(parts)))
-        outs: list = [None] * len(parts)
-        seconds = np.zeros(2)
-        busy: dict = {}  # conn -> worker
+        batch = _Batch(parts)
+        feeder = threading.Thread(target=self._feed, name="edgewise-feeder", daemon=True,
+                                  args=(batch, workers, token, payload, fn, mode))
+        outs, seconds = batch.outs, np.zeros(2)
+        feeder.start()
+        try:
+            while not batch.ended:
+                if cancelled is not None and cancelled():
+                    raise _stopped()
+                i = batch.take_last() if self.caller_works else None
+                if i is not None:
+                    outs[i], spent = self._run_here(fn, shared, parts[i], mode)
+                    seconds = seconds + spent
+                    if tick is not None:
+                        tick(i)
+                    self._take_news(batch, tick, wait=False)
+                else:
+                    self._take_news(batch, tick, wait=True)
+        except BaseException:
+            # stopped, failed or interrupted: end the workers still busy (a fresh one starts
+            # on next use), so that nothing half-done is ever read back
+            batch.stop()
+            feeder.join()
+            for w in batch.busy.values():
+                w.end()
+                w.tasks.clear()
+            self._workers = [w for w in self._workers if w.alive()]
+            raise
+        finally:
+            feeder.join()
+            batch.close()
+        return outs, seconds + batch.seconds
+
+    @staticmethod
+    def _take_news(batch, tick, *, wait: bool) -> None:
+        """Handle what the feeding thread reported: pieces done (progress, their warnings
+        raised again here), its end, or the error that ended it."""
+        while True:
+            try:
+                news = batch.news.get(timeout=_POLL) if wait else batch.news.get_nowait()
+            except queue.Empty:
+                return
+            wait = False  # one wait at most: the caller looks at the queue and Stop again
+            if news[0] == "done":
+                _, i, caught = news
+                _rewarn(caught, stacklevel=5)
+                if tick is not None:
+                    tick(i)
+            elif news[0] == "error":
+                raise news[1]
+            else:  # "end": every piece sent to a worker has been answered
+                batch.ended = True
+
+    @staticmethod
+    def _feed(batch, workers, token, payload, fn, mode):
+        """The feeding thread: send pieces from the front of the queue, read answers."""
+        parts, busy = batch.parts, batch.busy
         messages: dict = {}  # piece -> its pickled "run" message, until sent
         try:
-            while todo or busy:
+            while not batch.stopped:
                 for w in workers:
-                    # Two pieces in flight: a worker never waits for the caller to read its
-                    # last answer before it can start the next piece. A second piece goes
-                    # only while more remain (so that the caller never waits at the end of
-                    # a batch for a piece it could have taken) and only when its message is
-                    # small: it then fits the pipe's buffer, so sending it never blocks
-                    # while the worker writes a long answer.
-                    while todo and len(w.tasks) < _IN_FLIGHT:
-                        if w.tasks and len(todo) <= 2:
+                    # Two pieces in flight: a worker never waits for this thread to read
+                    # its last answer before it can start the next piece. A second piece
+                    # goes only while more remain (so that the caller never waits at the
+                    # end of a batch for a piece it could have taken) and only when its
+                    # message is small: it then fits the pipe's buffer, so sending it
+                    # never blocks while the worker writes a long answer.
+                    while len(w.tasks) < _IN_FLIGHT:
+                        i = batch.take_first(more_than=2 if w.tasks else 0)
+                        if i is None:
                             break
-                        i = todo[0]
                         if i not in messages:  # pickled once, however often it waits
                             messages[i] = ForkingPickler.dumps(
                                 ("run", i, token, fn, parts[i], mode))
                         if w.tasks and len(messages[i]) >= _PIPE_BYTES // 4:
+                            batch.put_back_first(i)
                             break
                         message = messages.pop(i)
-                        todo.popleft()
                         w.tasks.append(i)
                         busy[w.conn] = w
                         try:
@@ -621,17 +773,10 @@ class ProcessExecutor(_Spreading):
                             w.conn.send_bytes(message)
                         except OSError:  # the worker is gone (killed while we sent)
                             raise _lost(w, parts) from None
-                if cancelled is not None and cancelled():
-                    raise _stopped()
-                worked = bool(todo) and self.caller_works
-                if worked:  # the caller computes the last piece waiting, then looks again
-                    i = todo.pop()
-                    outs[i], spent = self._run_here(fn, shared, parts[i], mode)
-                    seconds = seconds + spent
-                    if tick is not None:
-                        tick(i)
-                ready = _wait_ready(list(busy) + [w.process.sentinel for w in busy.values()],
-                                    timeout=0 if worked else _POLL)
+                if not busy:
+                    break  # nothing left for the workers: the caller takes the rest
+                ready = _wait_ready(list(busy) + [w.process.sentinel for w in busy.values()]
+                                    + [batch.wake], timeout=_POLL)
                 for w in list(busy.values()):
                     if w.conn in ready or (w.process.sentinel in ready and w.conn.poll()):
                         try:
@@ -640,28 +785,21 @@ class ProcessExecutor(_Spreading):
                             reply = None
                         if reply is not None and reply[0] == "ok":
                             _, i, out, spent, caught = reply
-                            outs[i], seconds = out, seconds + spent
+                            batch.outs[i] = out
+                            batch.seconds += spent
                             w.tasks.remove(i)
                             if not w.tasks:
                                 del busy[w.conn]
-                            _rewarn(caught)
-                            if tick is not None:
-                                tick(i)
+                            batch.news.put(("done", i, caught))
                             continue
                         if reply is not None:
                             _, i, err, text = reply
                             raise _fault(err, text, "work in a worker process")
                     if w.process.sentinel in ready or not w.alive():
                         raise _lost(w, parts)
-        except BaseException:
-            # stopped, failed or interrupted: end the workers still busy (a fresh one starts
-            # on next use), so that nothing half-done is ever read back
-            for w in busy.values():
-                w.end()
-                w.tasks.clear()
-            self._workers = [w for w in self._workers if w.alive()]
-            raise
-        return outs, seconds
+        except BaseException as err:  # noqa: BLE001 - raised again in the caller's thread
+            batch.news.put(("error", err))
+        batch.news.put(("end",))
 
     @staticmethod
     def _run_here(fn, shared, part, mode):
@@ -684,6 +822,8 @@ class ProcessExecutor(_Spreading):
             w.end()
         self._workers = []
         self._shared.clear()
+        self._blas.close()  # BLAS threads as they were before the workers started
+        self._blas_held = False
 
     def __repr__(self):
         return f"ProcessExecutor(jobs={self.jobs})"
@@ -898,18 +1038,32 @@ def blas_threads(limit: int | None):
     a large product compete with it for the cores: on a busy 2-core machine, multi-threaded
     BLAS made a 2-process kernel search 14 times slower (43 s against 3 s), and a Fisher's z
     search about a quarter slower after its correlation matrix.
+
+    When every BLAS library already runs ``limit`` threads, nothing is set: after a fork,
+    OpenBLAS (0.3.30 measured) restarts its thread pool on the next setting, even an unchanged
+    one, and the new threads spin for about a tenth of a second, taking the cores from the
+    processes that compute (see :meth:`ProcessExecutor._ready_workers`).
     """
-    global _BLAS_CONTROLLER
     if limit is None:
         return contextlib.nullcontext()
+    controller = _blas_controller()
+    if controller is None or all(lib.num_threads == limit
+                                 for lib in controller.lib_controllers):
+        return contextlib.nullcontext()
+    return controller.limit(limits=limit)
+
+
+def _blas_controller():
+    """threadpoolctl's controller of the loaded BLAS libraries (None without threadpoolctl)."""
+    global _BLAS_CONTROLLER
     if _BLAS_CONTROLLER is None:
         try:
             from threadpoolctl import ThreadpoolController
         except ImportError:
-            return contextlib.nullcontext()
+            return None
         # finding the loaded libraries reads the process's memory map (milliseconds): once
-        _BLAS_CONTROLLER = ThreadpoolController()
-    return _BLAS_CONTROLLER.limit(limits=limit, user_api="blas")
+        _BLAS_CONTROLLER = ThreadpoolController().select(user_api="blas")
+    return _BLAS_CONTROLLER
 
 
 _BLAS_CONTROLLER = None

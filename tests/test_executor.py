@@ -71,6 +71,29 @@ def slow_and_logged(args):
     return x
 
 
+def wait_for_the_others(args):
+    """Items logged at once; the item "wait" (the caller's: it takes from the back) returns
+    only when every other item has been logged, or after 60 s."""
+    path, x, others = args
+    if x != "wait":
+        with open(path, "a") as f:
+            f.write(f"{os.getpid()} {x}\n")
+        return x
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline:
+        if os.path.exists(path) and open(path).read().count("\n") >= others:
+            return "all done meanwhile"
+        time.sleep(0.01)
+    return "timed out"
+
+
+def blas_thread_counts(_):
+    """The BLAS libraries' thread limits in the process that runs this (threadpoolctl)."""
+    from threadpoolctl import threadpool_info
+    return sorted({lib["num_threads"] for lib in threadpool_info()
+                   if lib["user_api"] == "blas"})
+
+
 def warn_and_return(x):
     warnings.warn(f"item {x} is odd", UserWarning)
     return x
@@ -125,6 +148,52 @@ def test_caller_and_one_worker_share_two_jobs():
     pids = [pid for pid, _ in out]
     assert os.getpid() in pids and len(set(pids)) == 2
     assert pids[0] != os.getpid() and pids[-1] == os.getpid()
+
+
+def test_workers_are_fed_while_the_caller_computes(tmp_path):
+    # The caller's own piece here lasts until the worker has run every other item, which it
+    # can only do if it is given new pieces while the caller computes (it holds two at most).
+    log = tmp_path / "log.txt"
+    items = [(str(log), i, 0) for i in range(12)] + [(str(log), "wait", 12)]
+    with ProcessExecutor(2) as ex:
+        out = ex.map(wait_for_the_others, items)
+    assert out[:12] == list(range(12)) and out[12] == "all done meanwhile"
+    pids = {line.split()[0] for line in log.read_text().splitlines()}
+    assert len(pids) == 1 and str(os.getpid()) not in pids  # the worker ran them all
+
+
+def test_blas_runs_one_thread_in_workers_and_is_restored_after():
+    # Workers and the caller run one BLAS thread while the workers live, set once before the
+    # workers start (see the executor's notes on OpenBLAS); the caller's own setting comes back
+    # when the executor closes. Thread counts read by threadpoolctl.
+    pytest.importorskip("threadpoolctl")
+    before = blas_thread_counts(None)
+    with ProcessExecutor(2, min_seconds=0) as ex:
+        counts = ex.map(blas_thread_counts, range(6))
+        during = blas_thread_counts(None)
+    assert all(c == [1] for c in counts) and during == [1]
+    assert blas_thread_counts(None) == before
+
+
+def test_an_unchanged_blas_limit_is_not_set_again(monkeypatch):
+    # Setting OpenBLAS's thread count, even to its current value, restarts its thread pool
+    # after a fork (measured with OpenBLAS 0.3.30); blas_threads leaves an unchanged one alone.
+    pytest.importorskip("threadpoolctl")
+    from discovery import executor
+    controller = executor._blas_controller()
+    if controller is None or not controller.lib_controllers:
+        pytest.skip("no BLAS library found by threadpoolctl")
+    calls = []
+    for lib in controller.lib_controllers:
+        monkeypatch.setattr(lib, "set_num_threads",
+                            lambda n, _set=lib.set_num_threads: (calls.append(n), _set(n)))
+    with executor.blas_threads(1):
+        first = len(calls)
+        with executor.blas_threads(1):
+            assert len(calls) == first  # already one thread: nothing set
+    current = {lib.num_threads for lib in controller.lib_controllers}
+    if current != {1}:
+        assert first > 0
 
 
 def test_fault_in_the_callers_piece_is_the_same_one_error():
