@@ -38,6 +38,7 @@ from typing import Callable
 import numpy as np
 
 from ..exceptions import DataValidationError, SearchCancelled, SettingsError
+from ..executor import blas_threads
 from ..result import ASSUMPTIONS, Edge
 from ._common import csv_text, orientation_of
 
@@ -308,14 +309,11 @@ def _consensus(pairs, cutoff, pag=False) -> tuple[Edge, ...]:
 def _run_resamples(frame, task):
     """Search each resample of a chunk; return ``(index, [(a, b, orientation)] or None)``.
     Module-level so that worker processes can run it; ``frame`` is sent to each worker once."""
-    import multiprocessing
-
-    from ..executor import blas_threads
     from ..search import discover
     method, options, streams = task
-    # in a worker process, one BLAS thread: processes already fill the cores, and spinning
-    # BLAS threads of two processes on two cores slow both down
-    with blas_threads(1 if multiprocessing.parent_process() is not None else None):
+    # One BLAS thread (see support(): already so in the caller and in local workers, where
+    # this sets nothing; a cluster's worker is set once a chunk, not once a search).
+    with blas_threads(1):
         return _search_each(frame, method, options, streams, discover)
 
 
@@ -438,10 +436,15 @@ def support(data, resamples: int = 100, method: str = "bootstrap", *, seed=None,
                                             else cancel)
     options = dict(discover_options)
     found: list = [None] * len(streams)
-    with _executor(jobs, cluster) as executor:
-        # small chunks: frequent progress, a quick Stop, and processes kept evenly busy (the
-        # caller and the workers take chunks as they free up)
-        chunks = executor.chunks(streams, per_job=8 if executor.jobs > 1 else 25)
+    # One BLAS thread for the whole run: a resample's search on a table of this kind gains
+    # nothing from BLAS threads, and setting them for each search (as discover does) restarts
+    # OpenBLAS's thread pool, whose new threads spin: 100 resamples in-process took 4.8 s
+    # and 9 s of CPU so, 4.3 s and 4.3 s of CPU with one thread held (docs/benchmarks.md).
+    with blas_threads(1), _executor(jobs, cluster) as executor:
+        # small chunks (about 3 resamples on 2 processes): frequent progress, a quick Stop,
+        # and processes kept evenly busy to the end (the caller and the workers take chunks
+        # as they free up)
+        chunks = executor.chunks(streams, per_job=16 if executor.jobs > 1 else 25)
         per_chunk = len(streams) / len(chunks)
 
         def tick(done_chunks, total):
