@@ -312,11 +312,11 @@ class _Spreading(Executor):
         if rate.here is None or self.jobs < 2 or len(rows) < 2:
             # A new kind of batch (a deeper level) is timed here first, while the workers
             # wait; when workers run and the last batch of this test says this one is
-            # clearly worth spreading (its rows cost at least as much with one more
-            # variable given), it is spread at once and its cost learned from the workers.
+            # worth spreading (its rows cost at least as much with one more variable
+            # given), it is spread at once and its cost learned from the workers.
             last = self._last_rate.get(id(shared))
             if last is not None and self.jobs >= 2 and len(rows) >= 2 * self.jobs \
-                    and self._started() and last * len(rows) >= 2 * self.min_seconds:
+                    and self._started() and last * len(rows) >= self.min_seconds:
                 rate.here, guessed = last, True
             else:
                 rate.here = self._probe(fn, shared, rows, head)
@@ -615,7 +615,7 @@ class ProcessExecutor(_Spreading):
     # neighbouring pieces (rows sharing a conditioning set) stay on one side whatever their
     # size: small pieces cost a pipe round trip each, and keep every process busy to the end
     # of a batch.
-    chunk_seconds = 0.03
+    chunk_seconds = 0.02
     chunks_per_job = 16
     caller_works = True
     chunks_min_per_job = 2  # a worker holds two pieces at once; the caller needs its own

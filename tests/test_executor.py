@@ -196,6 +196,67 @@ def test_an_unchanged_blas_limit_is_not_set_again(monkeypatch):
         assert first > 0
 
 
+def test_a_new_kind_of_batch_is_probed_in_order_and_leaves_rows_to_spread():
+    # The probe runs the first rows in-process, in pieces of 1, 1, 2, 4, ... rows, keeps their
+    # answers in order, and leaves at least two rows for the workers.
+    data = np.arange(200.0).reshape(100, 2)
+    seen = []
+
+    def sums(shared, part):
+        seen.append(len(part))
+        time.sleep(0.002 * len(part))
+        return shared[part[:, 0]].sum(axis=1)
+
+    for m in (1, 3, 5, 100):
+        seen.clear()
+        head = []
+        rows = np.arange(m)[:, None]
+        per_row = ProcessExecutor._probe(sums, data, rows, head)
+        done = sum(len(h) for h in head)
+        assert seen[:2] == [1, 1][:len(seen)] and all(b >= a for a, b in zip(seen[1:], seen[2:]))
+        assert done == 1 if m <= 3 else 2 <= done <= m - 2
+        np.testing.assert_array_equal(np.concatenate(head), data[:done].sum(axis=1))
+        assert per_row >= 0.002
+
+
+def test_rows_sharing_a_conditioning_set_stay_together_in_one_order_in_every_batch():
+    # The caller takes pieces from the back of a batch and workers from the front: a set's
+    # rows sit together, and sets keep one order whichever batch they come in, so that a set
+    # goes to the same side (and its cached pieces) each time.
+    from discovery.independence import FisherZ
+
+    class Recorder:
+        jobs = 2
+
+        def __init__(self):
+            self.batches = []
+
+        def map_rows(self, fn, shared, rows, groups=None):
+            self.batches.append(np.array(rows))
+            return fn(shared, rows)
+
+    test = FisherZ(sample(300, seed=2))
+    test.vectorised = False  # let the batches reach the executor
+    rec = Recorder()
+    rng = np.random.default_rng(0)
+    expected = []
+    for _ in range(2):
+        idx = np.array([[*sorted(rng.choice(10, size=2, replace=False))] for _ in range(80)])
+        given = np.array([[v for v in range(10) if v not in r][rng.integers(8)] for r in idx])
+        idx = np.column_stack([idx, given])
+        expected.append(test._batch_array(idx)[1])
+        np.testing.assert_allclose(test.pvalues_array(idx, executor=rec), expected[-1])
+    position = {}
+    for rows in rec.batches:
+        sets = [tuple(r[2:]) for r in rows]
+        runs = [sets[0]] + [t for p, t in zip(sets, sets[1:]) if t != p]
+        assert len(runs) == len(set(runs))  # each set's rows are contiguous
+        rank = {t: k for k, t in enumerate(runs)}
+        common = [t for t in runs if t in position]
+        assert common == sorted(common, key=position.get)  # the same order in both batches
+        position.update({t: len(position) + rank[t] for t in runs if t not in position})
+
+
 def test_fault_in_the_callers_piece_is_the_same_one_error():
     with ProcessExecutor(2) as ex:
         with pytest.raises(WorkerError, match=r"ZeroDivisionError: three is not allowed"):
