@@ -20,9 +20,14 @@ Why parallel work used to be slower, and what this module does about it
       pickled once and sent to each worker the first time that worker needs it (a Dask
       cluster receives it by ``scatter(..., broadcast=True)``); the worker keeps it, with its
       caches, for later batches, and batches carry only integer index rows;
-    * **chunks are sized by measured cost**: the first row of a new kind of batch is timed
-      in-process, then the workers' own timings update a running estimate; chunks aim at a
-      few tens of milliseconds each, at least one per worker;
+    * **chunks are sized by measured cost**: the first rows of a new kind of batch are timed
+      in-process (:data:`PROBE_SECONDS`), or, while workers run, the last batch's rows stand
+      in for them; then the workers' own timings update a running estimate; chunks aim at a
+      few tens of milliseconds each, at least two per process;
+    * **workers are fed while the caller computes**: a feeding thread hands them pieces from
+      the front of a batch and reads their answers while the caller computes pieces from the
+      back; rows are ordered so that a conditioning set goes to the same side in every batch
+      (where its cached features are);
     * **small batches stay in-process**: when a batch's estimated cost is below
       ``min_seconds`` (default 0.1 s) shipping it cannot pay, and it runs where it is;
     * **spreading must pay**: each spread batch measures how many cores the computing
@@ -30,7 +35,8 @@ Why parallel work used to be slower, and what this module does about it
       processes); below :data:`SPREAD_CORES`
       (other work keeps the cores busy), the extra work of spreading cannot pay, and
       batches stay in-process, every fourth one being spread anyway to notice free cores;
-    * **BLAS is single-threaded in workers**, which already share the cores.
+    * **BLAS runs one thread while workers run**, set once before the first fork and never
+      per piece (see :meth:`ProcessExecutor._ready_workers`).
 
 Faults
     An exception raised by ``fn`` in a worker reaches the caller as one error: the original
@@ -76,12 +82,10 @@ from .exceptions import ClusterError, DiscoveryError, SearchCancelled, WorkerErr
 __all__ = ["Executor", "InProcessExecutor", "ProcessExecutor", "DaskExecutor", "blas_threads",
            "make_executor"]
 
-#: Batches whose estimated in-process cost is below this many seconds stay in-process ...
+#: Batches whose estimated in-process cost is below this many seconds stay in-process (a
+#: batch of this cost may also start the first local worker: with fork, starting one and
+#: sending it the test takes a few tens of milliseconds).
 MIN_SECONDS = 0.1
-#: ... and below this many times as long while no local worker runs yet: starting one and
-#: warming its caches costs about 0.1-0.2 s, which only a batch of half a second can repay
-#: (so a short search, e.g. the mixed test on a few thousand rows, stays in-process).
-START_FACTOR = 1
 #: Seconds of rows a batch of a new kind runs in-process first, to estimate the rest's cost.
 PROBE_SECONDS = 0.03
 #: Seconds of work a chunk aims at (more chunks than workers keep the workers evenly busy).
@@ -323,8 +327,7 @@ class _Spreading(Executor):
         rest = rows[sum(len(h) for h in head):]
         if not len(rest):
             return np.concatenate(head)
-        needed = self.min_seconds * (1 if self._started() else START_FACTOR)
-        if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < needed \
+        if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < self.min_seconds \
                 or not self._spreading_pays():
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
