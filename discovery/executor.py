@@ -311,7 +311,7 @@ class _Spreading(Executor):
             rate = self._cost.setdefault(key, _Rates())
             while len(self._cost) > 64:  # estimates of tests long gone
                 self._cost.pop(next(iter(self._cost)))
-        head = []
+        probed: list = []  # (positions, outputs) of rows the probe ran here
         guessed = False
         if rate.here is None or self.jobs < 2 or len(rows) < 2:
             # A new kind of batch (a deeper level) is timed here first, while the workers
@@ -323,17 +323,33 @@ class _Spreading(Executor):
                     and self._started() and last * len(rows) >= self.min_seconds:
                 rate.here, guessed = last, True
             else:
-                rate.here = self._probe(fn, shared, rows, head)
-        rest = rows[sum(len(h) for h in head):]
+                rate.here = self._probe(fn, shared, rows, probed)
+        if probed:
+            left = np.ones(len(rows), dtype=bool)
+            for positions, _ in probed:
+                left[positions] = False
+            at = np.flatnonzero(left)
+            rest = rows[at]
+        else:
+            at, rest = None, rows
+
+        def whole(outs):  # every row's output, in the rows' order
+            if not probed:
+                return np.concatenate(outs)
+            values = np.concatenate([o for _, o in probed] + outs)
+            out = np.empty_like(values)
+            out[np.concatenate([p for p, _ in probed] + [at])] = values
+            return out
+
         if not len(rest):
-            return np.concatenate(head)
+            return whole([])
         if self.jobs < 2 or len(rest) < 2 or rate.here * len(rest) < self.min_seconds \
                 or not self._spreading_pays():
             started = time.perf_counter()
             out = np.asarray(fn(shared, rest))
             rate.learn("here", time.perf_counter() - started, len(rest))
             self._remember(shared, rate.here)
-            return np.concatenate(head + [out])
+            return whole([out])
         # Chunks of about chunk_seconds each, between one and chunks_per_job per worker:
         # enough to even out the workers' loads, few enough that rows sharing a conditioning
         # set (and the test's cached pieces for it) mostly stay together.
@@ -342,7 +358,7 @@ class _Spreading(Executor):
                     max(self.chunks_min_per_job * self.jobs,
                         int(np.ceil(cost * len(rest) / self.chunk_seconds))))
         cuts = _cuts(len(rest), count, None if groups is None
-                     else np.asarray(groups)[len(head):])
+                     else np.asarray(groups)[at if at is not None else slice(None)])
         parts = [rest[a:b] for a, b in zip(cuts[:-1], cuts[1:])]
         self._prepare()  # start workers before the first piece goes out
         outs, (seconds, cpu) = self._dispatch(fn, shared, parts, "rows", check, None)
@@ -356,7 +372,7 @@ class _Spreading(Executor):
             # and the wait for the last piece are not the machine's load).
             cores = min(self.jobs, len(parts)) * cpu / seconds
             self._cores = cores if self._cores is None else 0.5 * (self._cores + cores)
-        return np.concatenate(head + [np.asarray(o) for o in outs])
+        return whole([np.asarray(o) for o in outs])
 
     def _remember(self, shared, per_row: float) -> None:
         """Keep the seconds a row of the latest batch of this shared object took."""
@@ -367,19 +383,25 @@ class _Spreading(Executor):
                 self._last_rate.pop(next(iter(self._last_rate)))
 
     @staticmethod
-    def _probe(fn, shared, rows, head: list) -> float:
-        """Run the first rows here (their answers go to ``head``) and return the seconds a
-        row took: rows in pieces of 1, 1, 2, 4, ... until they took :data:`PROBE_SECONDS`,
-        leaving at least two rows (a batch of three or fewer: one row). The first row of a
-        new kind often pays one-off costs (a first call, a cache filled), so it is left out
-        of the estimate when there are others; one or two rows alone misjudged batches
-        whose rows differ in cost (a mixed-data batch with fast all-discrete rows first)."""
+    def _probe(fn, shared, rows, probed: list) -> float:
+        """Run some rows here and return the seconds a row took; ``(positions, outputs)`` of
+        the rows run go to ``probed``.
+
+        Rows spread over the batch (positions in bit-reversed order: the first, the middle,
+        the quarters, ...), in pieces of 1, 1, 2, 4, ... rows until they took
+        :data:`PROBE_SECONDS`, leaving at least two rows (a batch of three or fewer: one row).
+        A batch is sorted, and its rows' costs often change along it (a mixed-data batch has
+        its fast tests of continuous columns first): the first rows alone misjudged such
+        batches. The first row of a new kind often pays one-off costs (a first call, a cache
+        filled), so it is left out of the estimate when there are others."""
+        picks = _spread_order(len(rows))
         done, size, first, rest_seconds = 0, 1, 0.0, 0.0
         while done == 0 or (len(rows) - done > 2
                             and (done < 2 or first + rest_seconds < PROBE_SECONDS)):
             take = min(size, len(rows) - done - 2) if done else 1
+            positions = np.sort(picks[done:done + take])
             started = time.perf_counter()
-            head.append(np.asarray(fn(shared, rows[done:done + take])))
+            probed.append((positions, np.asarray(fn(shared, rows[positions]))))
             seconds = time.perf_counter() - started
             if done == 0:
                 first = seconds
@@ -425,6 +447,16 @@ class _Rates:
         per_row = seconds / max(count, 1)
         old = getattr(self, which)
         setattr(self, which, per_row if old is None else 0.5 * (old + per_row))
+
+
+def _spread_order(m: int) -> np.ndarray:
+    """The positions 0..m-1, those spread evenly over the range first (bit-reversed order)."""
+    bits = max(1, int(m - 1).bit_length())
+    codes = np.arange(1 << bits, dtype=np.int64)
+    reversed_codes = np.zeros_like(codes)
+    for b in range(bits):
+        reversed_codes |= ((codes >> b) & 1) << (bits - 1 - b)
+    return reversed_codes[reversed_codes < m]
 
 
 def _cuts(m: int, count: int, groups) -> list[int]:

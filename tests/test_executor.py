@@ -196,9 +196,10 @@ def test_an_unchanged_blas_limit_is_not_set_again(monkeypatch):
         assert first > 0
 
 
-def test_a_new_kind_of_batch_is_probed_in_order_and_leaves_rows_to_spread():
-    # The probe runs the first rows in-process, in pieces of 1, 1, 2, 4, ... rows, keeps their
-    # answers in order, and leaves at least two rows for the workers.
+def test_a_new_kind_of_batch_is_probed_across_it_and_leaves_rows_to_spread():
+    # The probe runs rows spread over the batch in-process, in pieces of 1, 1, 2, 4, ...
+    # rows, keeps each answer with its position, and leaves at least two rows for the
+    # workers; the spread is what catches a batch whose later rows cost more.
     data = np.arange(200.0).reshape(100, 2)
     seen = []
 
@@ -209,14 +210,26 @@ def test_a_new_kind_of_batch_is_probed_in_order_and_leaves_rows_to_spread():
 
     for m in (1, 3, 5, 100):
         seen.clear()
-        head = []
+        probed = []
         rows = np.arange(m)[:, None]
-        per_row = ProcessExecutor._probe(sums, data, rows, head)
-        done = sum(len(h) for h in head)
+        per_row = ProcessExecutor._probe(sums, data, rows, probed)
+        positions = np.concatenate([p for p, _ in probed])
         assert seen[:2] == [1, 1][:len(seen)] and all(b >= a for a, b in zip(seen[1:], seen[2:]))
-        assert done == 1 if m <= 3 else 2 <= done <= m - 2
-        np.testing.assert_array_equal(np.concatenate(head), data[:done].sum(axis=1))
+        assert len(set(positions)) == len(positions)
+        assert len(positions) == 1 if m <= 3 else 2 <= len(positions) <= m - 2
+        for where, out in probed:
+            np.testing.assert_array_equal(out, data[where].sum(axis=1))
         assert per_row >= 0.002
+        if m == 100:  # the first, then the middle of the batch and the quarters
+            assert list(positions[:2]) == [0, 64] and positions.max() > 50
+
+
+def test_probed_rows_and_spread_rows_come_back_in_order():
+    data = np.arange(600.0).reshape(300, 2)
+    rows = np.arange(300)[:, None]
+    with ProcessExecutor(2, min_seconds=0) as ex:
+        np.testing.assert_array_equal(ex.map_rows(row_sums, data, rows), data.sum(axis=1))
+        assert ex._workers
 
 
 def test_rows_sharing_a_conditioning_set_stay_together_in_one_order_in_every_batch():
