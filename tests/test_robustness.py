@@ -413,3 +413,28 @@ def test_the_sweeps_shared_cache_is_exact_for_wide_rows():
     assert np.array_equal(first, test.pvalues_array(rows))
     assert np.array_equal(again, test.pvalues_array(rows[::-1]))
     assert cache.hits == 500 and cache.misses == 500
+
+
+def test_resampling_holds_one_blas_thread_and_restores_it(frame, monkeypatch):
+    # Each resample's search would otherwise set BLAS threads and set them back, which
+    # restarts OpenBLAS's thread pool (docs/parallel.md, "BLAS"); the run holds one thread
+    # throughout and leaves the caller's setting as it was. Thread counts read by threadpoolctl.
+    threadpoolctl = pytest.importorskip("threadpoolctl")
+    from discovery.robustness import _support
+
+    def counts():
+        return sorted({lib["num_threads"] for lib in threadpoolctl.threadpool_info()
+                       if lib["user_api"] == "blas"})
+
+    seen = []
+    real = _support._search_each
+
+    def watched(*args, **kwargs):
+        seen.append(counts())
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(_support, "_search_each", watched)
+    before = counts()
+    support(frame, resamples=4, seed=3)
+    assert seen and all(c == [1] for c in seen)
+    assert counts() == before
