@@ -19,6 +19,7 @@ Run alone: ``python tests/benchmarks/bench_gui.py``.
 from __future__ import annotations
 
 import os
+import shutil
 import sys
 import tempfile
 import time
@@ -87,9 +88,14 @@ def bench_layout_paint(repeat=3) -> float:
 
 
 def _example_data() -> Path:
+    """The greenhouse example's table, copied alone to a temporary folder: beside its
+    knowledge file the window would ask (in a modal dialog) whether to load it, and the
+    benchmark would wait for an answer that never comes."""
     data = ROOT / "example_sets" / "greenhouse" / "data.csv"
     if data.exists():
-        return data
+        path = Path(tempfile.mkdtemp()) / "greenhouse.csv"
+        shutil.copyfile(data, path)
+        return path
     import numpy as np
     import pandas as pd
     rng = np.random.default_rng(1)
